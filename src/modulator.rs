@@ -1,0 +1,235 @@
+//! The modulator: one validated configuration chaining the stages, and the
+//! block API that fills a DMA buffer.
+//!
+//! ```text
+//! samples (fs) -> oversampler -> edge solver -> requantiser -> bridge mapper -> compare words
+//! ```
+//!
+//! # Output layout
+//!
+//! For each input frame (one sample per audio channel, interleaved), for each
+//! of the `R` updates it makes (`R` = update rate / input rate), for each
+//! audio channel, the bridge's words: leg A high side, (leg A low side), leg
+//! B high side, (leg B low side). That is the order a timer DMA burst writes
+//! consecutive compare registers in: map the channels to the registers in
+//! that order.
+//!
+//! ```
+//! use ticktone::{Modulator, ModulatorSpec, BridgeKind, BridgeSpec, Sampling};
+//! use ticktone::timer::{TimerSpec, Edge};
+//! // 256-tick period, trailing edge, half bridge, input at the carrier rate.
+//! let spec = ModulatorSpec {
+//!     timer: TimerSpec::new(98.304e6, 384e3).with_edge(Edge::Trailing),
+//!     bridge: BridgeSpec::ideal(BridgeKind::Half),
+//!     input_rate_hz: 384e3,
+//!     sampling: Sampling::Uniform,
+//! };
+//! let mut m = Modulator::<1>::try_new(spec).unwrap();
+//! let mut out = [0u16; 3];
+//! // +0.5, 0 and -0.5 full scale: compare 192, 128 and 64 of 256.
+//! assert_eq!(m.process(&[0.5f32, 0.0, -0.5], &mut out), 3);
+//! assert_eq!(out, [192, 128, 64]);
+//! ```
+
+use crate::bridge::{Bridge, BridgeSpec, MAX_WORDS};
+use crate::edge::{EdgeSolver, Sampling};
+use crate::error::ConfigError;
+use crate::requant::Requantiser;
+use crate::sample::Sample;
+use crate::timer::{Timer, TimerSpec};
+
+/// A compare register word: `u16` or `u32`. Every compare value the
+/// modulator writes is at most [`crate::timer::MAX_TOP`] * 2, so both hold
+/// it without loss.
+pub trait CompareWord: Copy {
+    /// Word from a compare value.
+    fn from_ticks(ticks: u32) -> Self;
+}
+
+impl CompareWord for u16 {
+    #[inline(always)]
+    fn from_ticks(ticks: u32) -> Self {
+        ticks as u16
+    }
+}
+
+impl CompareWord for u32 {
+    #[inline(always)]
+    fn from_ticks(ticks: u32) -> Self {
+        ticks
+    }
+}
+
+/// Everything the modulator needs, before validation.
+#[derive(Clone, Copy, Debug, PartialEq)]
+#[cfg_attr(feature = "defmt", derive(defmt::Format))]
+pub struct ModulatorSpec {
+    /// Timer.
+    pub timer: TimerSpec,
+    /// Bridge, dead time and clamps.
+    pub bridge: BridgeSpec,
+    /// Rate of the samples given to [`Modulator::process`], Hz.
+    pub input_rate_hz: f64,
+    /// Edge sampling method.
+    pub sampling: Sampling,
+}
+
+/// Counts of values that were changed to keep the output safe.
+#[derive(Clone, Copy, Debug, Default, PartialEq, Eq)]
+#[cfg_attr(feature = "defmt", derive(defmt::Format))]
+pub struct Counters {
+    /// Input samples clamped or replaced (NaN, infinite, out of range).
+    pub input_clamped: u32,
+    /// Updates whose high count was raised to the minimum (minimum pulse,
+    /// dead time).
+    pub low_clamped: u32,
+    /// Updates whose high count was lowered to the maximum (minimum pulse,
+    /// dead time, bootstrap refresh).
+    pub high_clamped: u32,
+}
+
+#[derive(Clone, Debug)]
+struct Channel {
+    edge: EdgeSolver,
+    quant: Requantiser,
+}
+
+/// Sample-to-compare modulator for `CH` audio channels sharing one timer
+/// configuration.
+#[derive(Clone, Debug)]
+pub struct Modulator<const CH: usize> {
+    timer: Timer,
+    bridge: Bridge,
+    ratio: usize,
+    channels: [Channel; CH],
+    input_clamped: u32,
+}
+
+impl<const CH: usize> Modulator<CH> {
+    /// Validate `spec` and build the stages.
+    ///
+    /// # Errors
+    /// Any [`ConfigError`] of the timer, the bridge or the stages; and
+    /// [`ConfigError::RatesNotLocked`] / [`ConfigError::OversamplingRatio`]
+    /// when the input rate does not divide the update rate by a supported
+    /// ratio.
+    pub fn try_new(spec: ModulatorSpec) -> Result<Self, ConfigError> {
+        const { assert!(CH > 0, "a modulator needs at least one channel") };
+        let timer = Timer::try_new(spec.timer)?;
+        let bridge = Bridge::try_new(spec.bridge, &timer)?;
+        let update_hz = timer.update_rate_hz();
+        let input_hz = spec.input_rate_hz;
+        if !(input_hz.is_finite() && input_hz > 0.0) {
+            return Err(ConfigError::RatesNotLocked {
+                input_hz,
+                update_hz,
+            });
+        }
+        let ratio_f = update_hz / input_hz;
+        let ratio = crate::timer::round_pos(ratio_f);
+        if ratio < 1.0 || (ratio_f - ratio).abs() > 1e-9 * ratio_f {
+            return Err(ConfigError::RatesNotLocked {
+                input_hz,
+                update_hz,
+            });
+        }
+        let ratio = ratio as u32;
+        if ratio != 1 {
+            return Err(ConfigError::OversamplingRatio { ratio });
+        }
+        let (low, high) = bridge.high_count_range();
+        let channel = Channel {
+            edge: EdgeSolver::try_new(&timer, spec.sampling)?,
+            quant: Requantiser::try_new(low, high)?,
+        };
+        Ok(Self {
+            timer,
+            bridge,
+            ratio: ratio as usize,
+            channels: core::array::from_fn(|_| channel.clone()),
+            input_clamped: 0,
+        })
+    }
+
+    /// The validated timer.
+    pub const fn timer(&self) -> &Timer {
+        &self.timer
+    }
+
+    /// The validated bridge mapper.
+    pub const fn bridge(&self) -> &Bridge {
+        &self.bridge
+    }
+
+    /// Updates made from each input frame (the oversampling ratio).
+    pub const fn updates_per_frame(&self) -> usize {
+        self.ratio
+    }
+
+    /// Compare words written for each input frame: ratio x channels x words
+    /// per update.
+    pub const fn words_per_frame(&self) -> usize {
+        self.ratio * CH * self.bridge.words_per_update()
+    }
+
+    /// Clamp counts so far.
+    pub fn counters(&self) -> Counters {
+        let mut c = Counters {
+            input_clamped: self.input_clamped,
+            ..Counters::default()
+        };
+        for ch in &self.channels {
+            let q = ch.quant.counts();
+            c.low_clamped = c.low_clamped.wrapping_add(q.low);
+            c.high_clamped = c.high_clamped.wrapping_add(q.high);
+        }
+        c
+    }
+
+    /// Clear the clamp counts.
+    pub fn clear_counters(&mut self) {
+        self.input_clamped = 0;
+        for ch in &mut self.channels {
+            ch.quant.clear_counts();
+        }
+    }
+
+    /// Turn interleaved input frames into compare words (layout in the module
+    /// docs). Processes as many whole frames as both slices hold,
+    /// `min(input.len() / CH, out.len() / words_per_frame())`, and returns
+    /// that number; a partial frame at the end of either slice is left alone.
+    pub fn process<S: Sample, W: CompareWord>(&mut self, input: &[S], out: &mut [W]) -> usize {
+        let wpu = self.bridge.words_per_update();
+        let per_frame = self.words_per_frame();
+        let mut frames = 0;
+        for (frame, words) in input.chunks_exact(CH).zip(out.chunks_exact_mut(per_frame)) {
+            // One update a frame until the oversampler stage arrives.
+            for ((channel, &s), dst) in self
+                .channels
+                .iter_mut()
+                .zip(frame)
+                .zip(words.chunks_exact_mut(wpu))
+            {
+                let x = s.to_q31(&mut self.input_clamped);
+                let c = channel.quant.quantise(channel.edge.next(x));
+                let w: [u32; MAX_WORDS] = self.bridge.words(c);
+                for (d, &v) in dst.iter_mut().zip(&w) {
+                    *d = W::from_ticks(v);
+                }
+            }
+            frames += 1;
+        }
+        frames
+    }
+
+    /// One input frame: writes [`Modulator::words_per_frame`] words to the
+    /// front of `out` and returns `true`, or `false` (writing nothing) if
+    /// `out` is too short.
+    pub fn process_frame<S: Sample, W: CompareWord>(
+        &mut self,
+        frame: &[S; CH],
+        out: &mut [W],
+    ) -> bool {
+        self.process(frame, out) == 1
+    }
+}
