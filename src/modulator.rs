@@ -15,15 +15,14 @@
 //! that order.
 //!
 //! ```
-//! use ticktone::{Modulator, ModulatorSpec, BridgeKind, BridgeSpec, Sampling};
+//! use ticktone::{Modulator, ModulatorSpec, BridgeKind, BridgeSpec};
 //! use ticktone::timer::{TimerSpec, Edge};
 //! // 256-tick period, trailing edge, half bridge, input at the carrier rate.
-//! let spec = ModulatorSpec {
-//!     timer: TimerSpec::new(98.304e6, 384e3).with_edge(Edge::Trailing),
-//!     bridge: BridgeSpec::ideal(BridgeKind::Half),
-//!     input_rate_hz: 384e3,
-//!     sampling: Sampling::Uniform,
-//! };
+//! let spec = ModulatorSpec::new(
+//!     TimerSpec::new(98.304e6, 384e3).with_edge(Edge::Trailing),
+//!     BridgeSpec::ideal(BridgeKind::Half),
+//!     384e3,
+//! );
 //! let mut m = Modulator::<1>::try_new(spec).unwrap();
 //! let mut out = [0u16; 3];
 //! // +0.5, 0 and -0.5 full scale: compare 192, 128 and 64 of 256.
@@ -34,7 +33,8 @@
 use crate::bridge::{Bridge, BridgeSpec, MAX_WORDS};
 use crate::edge::{EdgeSolver, Sampling};
 use crate::error::ConfigError;
-use crate::requant::Requantiser;
+use crate::oversample::{Oversampler, MAX_RATIO};
+use crate::requant::{Requantiser, ShaperSpec};
 use crate::sample::Sample;
 use crate::timer::{Timer, TimerSpec};
 
@@ -72,6 +72,21 @@ pub struct ModulatorSpec {
     pub input_rate_hz: f64,
     /// Edge sampling method.
     pub sampling: Sampling,
+    /// Noise shaping of the rounding to ticks.
+    pub shaper: ShaperSpec,
+}
+
+impl ModulatorSpec {
+    /// Uniform sampling and plain rounding; set the other fields as needed.
+    pub const fn new(timer: TimerSpec, bridge: BridgeSpec, input_rate_hz: f64) -> Self {
+        Self {
+            timer,
+            bridge,
+            input_rate_hz,
+            sampling: Sampling::Uniform,
+            shaper: ShaperSpec::ROUND,
+        }
+    }
 }
 
 /// Counts of values that were changed to keep the output safe.
@@ -90,6 +105,7 @@ pub struct Counters {
 
 #[derive(Clone, Debug)]
 struct Channel {
+    over: Oversampler,
     edge: EdgeSolver,
     quant: Requantiser,
 }
@@ -134,13 +150,11 @@ impl<const CH: usize> Modulator<CH> {
             });
         }
         let ratio = ratio as u32;
-        if ratio != 1 {
-            return Err(ConfigError::OversamplingRatio { ratio });
-        }
         let (low, high) = bridge.high_count_range();
         let channel = Channel {
+            over: Oversampler::try_new(ratio)?,
             edge: EdgeSolver::try_new(&timer, spec.sampling)?,
-            quant: Requantiser::try_new(low, high)?,
+            quant: Requantiser::try_new(&timer, low, high, spec.shaper)?,
         };
         Ok(Self {
             timer,
@@ -202,19 +216,20 @@ impl<const CH: usize> Modulator<CH> {
         let wpu = self.bridge.words_per_update();
         let per_frame = self.words_per_frame();
         let mut frames = 0;
+        let mut fine = [0i32; MAX_RATIO];
         for (frame, words) in input.chunks_exact(CH).zip(out.chunks_exact_mut(per_frame)) {
-            // One update a frame until the oversampler stage arrives.
-            for ((channel, &s), dst) in self
-                .channels
-                .iter_mut()
-                .zip(frame)
-                .zip(words.chunks_exact_mut(wpu))
-            {
-                let x = s.to_q31(&mut self.input_clamped);
-                let c = channel.quant.quantise(channel.edge.next(x));
-                let w: [u32; MAX_WORDS] = self.bridge.words(c);
-                for (d, &v) in dst.iter_mut().zip(&w) {
-                    *d = W::from_ticks(v);
+            for (ch, (channel, &s)) in self.channels.iter_mut().zip(frame).enumerate() {
+                channel
+                    .over
+                    .push(s.to_q31(&mut self.input_clamped), &mut fine);
+                // Update u of channel ch starts at word (u * CH + ch) * wpu.
+                let dsts = words.chunks_exact_mut(wpu).skip(ch).step_by(CH);
+                for (&x, dst) in fine[..self.ratio].iter().zip(dsts) {
+                    let c = channel.quant.quantise(channel.edge.next(x));
+                    let w: [u32; MAX_WORDS] = self.bridge.words(c);
+                    for (d, &v) in dst.iter_mut().zip(&w) {
+                        *d = W::from_ticks(v);
+                    }
                 }
             }
             frames += 1;

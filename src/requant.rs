@@ -8,6 +8,7 @@
 
 use crate::edge::FRAC_BITS;
 use crate::error::ConfigError;
+use crate::timer::Timer;
 
 /// Clamp counts of a requantiser, in updates.
 #[derive(Clone, Copy, Debug, Default, PartialEq, Eq)]
@@ -17,6 +18,24 @@ pub struct ClampCounts {
     pub low: u32,
     /// Updates whose high count was lowered to the highest allowed.
     pub high: u32,
+}
+
+/// How the rounding error is shaped.
+#[derive(Clone, Copy, Debug, PartialEq, Eq)]
+#[cfg_attr(feature = "defmt", derive(defmt::Format))]
+pub struct ShaperSpec {
+    /// Noise-shaper order; 0 is plain rounding.
+    pub order: u8,
+    /// Add TPDF dither before rounding.
+    pub dither: bool,
+}
+
+impl ShaperSpec {
+    /// Plain rounding, no dither.
+    pub const ROUND: Self = Self {
+        order: 0,
+        dither: false,
+    };
 }
 
 /// Rounds high counts to ticks within `[low, high]`.
@@ -32,11 +51,24 @@ pub struct Requantiser {
 const HALF: i32 = 1 << (FRAC_BITS - 1);
 
 impl Requantiser {
-    /// A rounding requantiser whose output stays within `[low, high]` ticks.
+    /// A requantiser for `timer` whose output stays within `[low, high]`
+    /// ticks.
     ///
     /// # Errors
-    /// [`ConfigError::NoUsableDuty`] if `low > high`.
-    pub fn try_new(low: u32, high: u32) -> Result<Self, ConfigError> {
+    /// [`ConfigError::NoUsableDuty`] if `low > high`;
+    /// [`ConfigError::ShaperOrder`] for a shaper not built yet.
+    pub fn try_new(
+        _timer: &Timer,
+        low: u32,
+        high: u32,
+        shaper: ShaperSpec,
+    ) -> Result<Self, ConfigError> {
+        if shaper.order > 0 || shaper.dither {
+            return Err(ConfigError::ShaperOrder {
+                order: shaper.order,
+                max: 0,
+            });
+        }
         if low > high {
             return Err(ConfigError::NoUsableDuty { low, high });
         }
@@ -86,7 +118,8 @@ mod tests {
 
     #[test]
     fn rounds_and_clamps() {
-        let mut q = Requantiser::try_new(3, 120).unwrap();
+        let t = Timer::try_new(crate::timer::TimerSpec::new(98.304e6, 384e3)).unwrap();
+        let mut q = Requantiser::try_new(&t, 3, 120, ShaperSpec::ROUND).unwrap();
         assert_eq!(q.quantise((10 << FRAC_BITS) + HALF - 1), 10);
         assert_eq!(q.quantise((10 << FRAC_BITS) + HALF), 11);
         assert_eq!(q.quantise(0), 3);
