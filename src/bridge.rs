@@ -214,6 +214,10 @@ impl Bridge {
         if low >= high {
             return Err(ConfigError::NoUsableDuty { low, high });
         }
+        if spec.kind == BridgeKind::Full3 && top % 2 != 0 {
+            // Silence must give equal legs: c = top / 2 on both.
+            return Err(ConfigError::ThreeLevelOddTop { top });
+        }
         let mirrored = timer.edge() == Edge::Leading;
         let mode_a = if mirrored {
             LegMode::HighAtOrAbove

@@ -83,6 +83,12 @@ pub enum ConfigError {
         /// Highest compare value the clamps allow.
         high: u32,
     },
+    /// A 3-level bridge needs an even compare range so that silence puts
+    /// both legs on the same compare value (`top / 2`).
+    ThreeLevelOddTop {
+        /// The compare range (`P`, or `P / 2` for up/down counting).
+        top: u32,
+    },
     /// Minimum pulse is longer than half a period.
     MinPulseTooLong {
         /// Minimum pulse asked for, in ticks.
@@ -171,6 +177,12 @@ impl fmt::Display for ConfigError {
             NoUsableDuty { low, high } => write!(
                 f,
                 "dead time and minimum pulse leave no duty range: compare must be >= {low} and <= {high}"
+            ),
+            ThreeLevelOddTop { top } => write!(
+                f,
+                "a 3-level bridge needs an even compare range so that silence gives equal legs; \
+                 this timer's is {top} (pick a carrier whose period in ticks is a multiple of 4 \
+                 for up/down counting, even for up-counting)"
             ),
             MinPulseTooLong { ticks, max } => write!(
                 f,
