@@ -31,7 +31,9 @@ fn main() -> Result<(), ticktone::ConfigError> {
     // Invented scenario: 98.304 MHz timer, 384 kHz carrier, two updates a
     // period, full bridges with the timer's dead-time generator, input at
     // the update rate (no oversampling in this example).
-    let timer = TimerSpec::new(98.304e6, 384e3).with_edge(Edge::Double).with_update(UpdateScheme::Double);
+    let timer = TimerSpec::new(98.304e6, 384e3)
+        .with_edge(Edge::Double)
+        .with_update(UpdateScheme::Double);
     let spec = ModulatorSpec::new(timer, BridgeSpec::ideal(BridgeKind::Full3), 768e3);
     let mut m = Modulator::<CH>::try_new(spec)?;
     let words_per_half = FRAMES_PER_HALF * m.words_per_frame();
@@ -54,9 +56,16 @@ fn main() -> Result<(), ticktone::ConfigError> {
         .collect();
     for (event, chunk) in audio.chunks(FRAMES_PER_HALF * CH).enumerate() {
         let (first, second) = dma.split_at_mut(words_per_half);
-        let (name, half) = if event % 2 == 0 { ("half done", first) } else { ("all done", second) };
+        let (name, half) = if event % 2 == 0 {
+            ("half done", first)
+        } else {
+            ("all done", second)
+        };
         let used = refill(&mut m, chunk, half);
-        println!("{name:>9}: refilled {used} frames; first update {:?}", &half[..4]);
+        println!(
+            "{name:>9}: refilled {used} frames; first update {:?}",
+            &half[..4]
+        );
     }
     Ok(())
 }

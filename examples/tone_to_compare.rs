@@ -21,7 +21,14 @@ fn main() -> Result<(), ticktone::ConfigError> {
         .with_edge(Edge::Double)
         .with_update(UpdateScheme::Single);
     let timer = Timer::try_new(timer_spec)?;
-    let bridge = BridgeSpec::from_ns(&timer, BridgeKind::Full3, DeadTimeForm::Generator, 20.0, 60.0, 0.0)?;
+    let bridge = BridgeSpec::from_ns(
+        &timer,
+        BridgeKind::Full3,
+        DeadTimeForm::Generator,
+        20.0,
+        60.0,
+        0.0,
+    )?;
     let rate = timer.update_rate_hz(); // input at the update rate: no oversampling
     let mut m = Modulator::<1>::try_new(ModulatorSpec::new(timer_spec, bridge, rate))?;
 
@@ -29,14 +36,20 @@ fn main() -> Result<(), ticktone::ConfigError> {
     let amp = 10f64.powf(level_db / 20.0);
     let n = (rate / tone) as usize; // one cycle of the tone
     let input: Vec<i16> = (0..n)
-        .map(|k| (amp * (2.0 * std::f64::consts::PI * tone * k as f64 / rate).sin() * 32767.0).round() as i16)
+        .map(|k| {
+            (amp * (2.0 * std::f64::consts::PI * tone * k as f64 / rate).sin() * 32767.0).round()
+                as i16
+        })
         .collect();
     let mut words = vec![0u16; n * m.words_per_frame()];
     m.process(&input, &mut words);
 
     let b = *m.bridge();
     let (low, high) = b.high_count_range();
-    println!("ticktone: {tone} Hz tone at {level_db} dBFS -> compare values (input at {} kHz)", rate / 1e3);
+    println!(
+        "ticktone: {tone} Hz tone at {level_db} dBFS -> compare values (input at {} kHz)",
+        rate / 1e3
+    );
     println!(
         "timer     {} MHz clock, {} kHz carrier, {:?} counting, {:?} edge, {} update(s) a period",
         timer.clock_hz() / 1e6,
@@ -60,7 +73,12 @@ fn main() -> Result<(), ticktone::ConfigError> {
     );
     println!("\n update   input   leg A  leg B");
     for k in (0..n).step_by(n / 12) {
-        println!("{k:>7} {:>7}  {:>6} {:>6}", input[k], words[2 * k], words[2 * k + 1]);
+        println!(
+            "{k:>7} {:>7}  {:>6} {:>6}",
+            input[k],
+            words[2 * k],
+            words[2 * k + 1]
+        );
     }
     let a: Vec<u16> = words.iter().step_by(2).copied().collect();
     println!(
