@@ -10,6 +10,7 @@ pub mod edge;
 pub mod error;
 pub mod modulator;
 pub mod oversample;
+pub mod queue;
 pub mod requant;
 pub mod sample;
 pub mod timer;
