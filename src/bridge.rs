@@ -214,7 +214,7 @@ impl Bridge {
         if low >= high {
             return Err(ConfigError::NoUsableDuty { low, high });
         }
-        if spec.kind == BridgeKind::Full3 && top % 2 != 0 {
+        if spec.kind == BridgeKind::Full3 && !top.is_multiple_of(2) {
             // Silence must give equal legs: c = top / 2 on both.
             return Err(ConfigError::ThreeLevelOddTop { top });
         }

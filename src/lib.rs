@@ -2,7 +2,9 @@
 #![no_std]
 #![cfg_attr(docsrs, feature(doc_cfg))]
 
+// Host modules use `vec!` and `format!`; the firmware modules never do.
 #[cfg(feature = "std")]
+#[macro_use]
 extern crate std;
 
 pub mod bridge;

@@ -393,3 +393,40 @@ fn block_layout() {
     // left +0.5: A 192, B 64; right -0.5: A 64, B 192; then 128/128, 160/96.
     assert_eq!(out, [192, 64, 64, 192, 128, 128, 160, 96, 7, 7]);
 }
+
+proptest! {
+    /// Underrun never leaves a rail on: whatever the last frame, an empty
+    /// queue reaches exact silence within the fade length, moving
+    /// monotonically toward zero, and every empty call is counted.
+    #[test]
+    fn underrun_fades_to_silence(
+        frames in prop::collection::vec(any::<[i32; 2]>(), 0..6),
+        fade in 1u32..50,
+        extra in 0u32..20,
+    ) {
+        use heapless::spsc::Queue;
+        let mut q: Queue<[i32; 2], 8> = Queue::new();
+        let (mut p, c) = q.split();
+        let mut feed = ticktone::queue::Feeder::new(c, fade);
+        for f in &frames {
+            p.enqueue(*f).unwrap();
+        }
+        let mut last = [0i32; 2];
+        for f in &frames {
+            last = feed.next_frame();
+            prop_assert_eq!(&last, f);
+        }
+        for k in 0..fade + extra {
+            let now = feed.next_frame();
+            for ch in 0..2 {
+                prop_assert!(now[ch].unsigned_abs() <= last[ch].unsigned_abs());
+                prop_assert!(now[ch] == 0 || now[ch].signum() == last[ch].signum());
+            }
+            if k + 1 >= fade {
+                prop_assert_eq!(now, [0, 0]);
+            }
+            last = now;
+        }
+        prop_assert_eq!(feed.underruns(), fade + extra);
+    }
+}
