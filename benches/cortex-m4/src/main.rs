@@ -1,0 +1,255 @@
+//! Instruction counts and compare-word checksums of ticktone on an emulated
+//! Cortex-M4: QEMU `mps2-an386` with `-icount shift=0`, so that every
+//! instruction advances the virtual clock by exactly 1 ns.
+//!
+//! # How instructions are counted
+//! SysTick runs from the 25 MHz system clock of the board model, which QEMU
+//! derives from the virtual clock: one tick every 40 instructions. The
+//! counter is 24 bits wide and counts down from 2^24 - 1; a timed run reads
+//! it before and after and takes the difference modulo 2^24, so one wrap is
+//! handled and every run here stays far below 2^24 ticks (671 M
+//! instructions). The ratio 40 is checked at start-up on a loop of known
+//! length (`calibration` line). Each timed run is at least about 2 M
+//! instructions (50 000 ticks), so the +-1 tick granularity is below 0.01 %.
+//!
+//! A stage or chain figure is (instructions of the loop with the work) minus
+//! (instructions of the same loop with an empty body), divided by the number
+//! of channel-updates (one update = the compare words of one audio channel
+//! for one update slot).
+//!
+//! # Output, one line each
+//! - `calibration instr_per_tick <x>`
+//! - `instr_per_update <name> <x>`
+//! - `checksum <name> <16 hex digits>`
+//!
+//! Then a semihosting exit with success; a panic exits with failure.
+#![no_std]
+#![no_main]
+
+use core::hint::black_box;
+
+use cortex_m::peripheral::syst::SystClkSource;
+use cortex_m::peripheral::SYST;
+use cortex_m_rt::entry;
+use cortex_m_semihosting::{debug, hprintln};
+use panic_semihosting as _;
+
+use ticktone::bridge::Bridge;
+use ticktone::edge::{EdgeSolver, Sampling};
+use ticktone::requant::{Requantiser, ShaperSpec};
+use ticktone::timer::Timer;
+use ticktone::Modulator;
+
+mod workload;
+use workload::{Config, Signal, BLOCK, CH, CONFIGS, MAX_BLOCK_WORDS};
+
+/// Instructions a SysTick tick: 1 ns per instruction, 25 MHz SysTick.
+const INSTR_PER_TICK: u64 = 40;
+
+/// Channel-updates a timed run aims at (about 2 M instructions or more).
+const TARGET_UPDATES: usize = 40_000;
+
+/// Update-rate values for the stage loops.
+const STAGE_LEN: usize = 4096;
+
+/// SysTick ticks spent in `f`, modulo 2^24.
+#[inline(never)]
+fn ticks<F: FnOnce()>(f: F) -> u64 {
+    let start = SYST::get_current();
+    f();
+    let end = SYST::get_current();
+    (start.wrapping_sub(end) & 0x00FF_FFFF) as u64
+}
+
+/// Instructions spent in `f`.
+fn instructions<F: FnOnce()>(f: F) -> u64 {
+    ticks(f) * INSTR_PER_TICK
+}
+
+/// Exactly `2 n` instructions (`subs`, `bne` per turn), n >= 1.
+#[inline(never)]
+fn spin(n: u32) {
+    // SAFETY: a register-only countdown loop; touches no memory or stack.
+    unsafe {
+        core::arch::asm!(
+            "2:",
+            "subs {0}, {0}, #1",
+            "bne 2b",
+            inout(reg) n => _,
+            options(nomem, nostack),
+        );
+    }
+}
+
+/// Print `instr_per_update <name> <x.x>` from net instructions and updates.
+fn report(name: &str, net: i64, updates: usize) {
+    let tenths = (net * 10 + updates as i64 / 2) / updates as i64;
+    let sign = if tenths < 0 { "-" } else { "" };
+    let t = tenths.unsigned_abs();
+    hprintln!("instr_per_update {} {}{}.{}", name, sign, t / 10, t % 10);
+}
+
+// ---- stage loops: `#[no_mangle]` so the disassembly can be found by name ----
+
+#[no_mangle]
+#[inline(never)]
+fn tt_loop_empty(xs: &[i32]) {
+    for &x in xs {
+        black_box(x);
+    }
+}
+
+#[no_mangle]
+#[inline(never)]
+fn tt_loop_edge(e: &mut EdgeSolver, xs: &[i32]) {
+    for &x in xs {
+        black_box(e.next(x));
+    }
+}
+
+#[no_mangle]
+#[inline(never)]
+fn tt_loop_requant(q: &mut Requantiser, vs: &[i32]) {
+    for &v in vs {
+        black_box(q.quantise(v));
+    }
+}
+
+#[no_mangle]
+#[inline(never)]
+fn tt_loop_bridge(b: &Bridge, cs: &[i32]) {
+    for &c in cs {
+        black_box(b.words(c as u32));
+    }
+}
+
+/// The whole chain over `blocks` blocks of [`BLOCK`] frames, cycling through
+/// `input`: the DMA half-buffer refill a firmware makes.
+#[no_mangle]
+#[inline(never)]
+fn tt_chain_blocks(m: &mut Modulator<CH>, input: &[i32], out: &mut [u16], blocks: usize) {
+    for block in input.chunks_exact(BLOCK * CH).cycle().take(blocks) {
+        let frames = m.process(block, &mut *out);
+        black_box(frames);
+        black_box(&mut *out);
+    }
+}
+
+/// [`tt_chain_blocks`] with an empty body: the loop overhead.
+#[no_mangle]
+#[inline(never)]
+fn tt_chain_blocks_empty(input: &[i32], out: &mut [u16], blocks: usize) {
+    for block in input.chunks_exact(BLOCK * CH).cycle().take(blocks) {
+        black_box(block);
+        black_box(&mut *out);
+    }
+}
+
+fn calibrate() {
+    let short = instructions(|| spin(100_000));
+    let long = instructions(|| spin(1_100_000));
+    // 2 000 000 instructions between the two runs.
+    let ticks = (long - short) / INSTR_PER_TICK;
+    let milli = 2_000_000u64 * 1000 / ticks;
+    hprintln!(
+        "calibration instr_per_tick {}.{:03}",
+        milli / 1000,
+        milli % 1000
+    );
+}
+
+/// Time `body` over `xs` repeated until [`TARGET_UPDATES`], net of the
+/// empty loop.
+fn time_stage(name: &str, xs: &[i32], mut body: impl FnMut(&[i32])) {
+    let reps = TARGET_UPDATES.div_ceil(xs.len());
+    let empty = instructions(|| {
+        for _ in 0..reps {
+            tt_loop_empty(xs);
+        }
+    });
+    let full = instructions(|| {
+        for _ in 0..reps {
+            body(xs);
+        }
+    });
+    report(name, full as i64 - empty as i64, reps * xs.len());
+}
+
+fn stages() {
+    let timer = Timer::try_new(workload::timer_updown_double()).unwrap();
+    // Update-rate signal: the left channel of the test signal at 768 kHz.
+    let mut xs = [0i32; STAGE_LEN];
+    let mut sig = Signal::new(768_000, usize::MAX);
+    for x in xs.iter_mut() {
+        *x = sig.frame()[0];
+    }
+
+    let mut edge = EdgeSolver::try_new(&timer, Sampling::Uniform).unwrap();
+    time_stage("edge-uniform", &xs, |xs| tt_loop_edge(&mut edge, xs));
+
+    // High counts (Q16 ticks) for the requantiser.
+    let mut edge = EdgeSolver::try_new(&timer, Sampling::Uniform).unwrap();
+    let mut hs = [0i32; STAGE_LEN];
+    for (h, &x) in hs.iter_mut().zip(&xs) {
+        *h = edge.next(x);
+    }
+    let bridge = Bridge::try_new(workload::bridge_full3(), &timer).unwrap();
+    let (low, high) = bridge.high_count_range();
+    let mut q = Requantiser::try_new(&timer, low, high, ShaperSpec::ROUND).unwrap();
+    time_stage("requant-round", &hs, |vs| tt_loop_requant(&mut q, vs));
+
+    // Rounded high counts for the bridge mapper.
+    let mut q = Requantiser::try_new(&timer, low, high, ShaperSpec::ROUND).unwrap();
+    let mut cs = [0i32; STAGE_LEN];
+    for (c, &h) in cs.iter_mut().zip(&hs) {
+        *c = q.quantise(h) as i32;
+    }
+    time_stage("bridge-full3", &cs, |cs| tt_loop_bridge(&bridge, cs));
+    let bridge = Bridge::try_new(workload::bridge_full3_separate(), &timer).unwrap();
+    time_stage("bridge-full3sep", &cs, |cs| tt_loop_bridge(&bridge, cs));
+}
+
+/// Input frames cycled through by a timed chain run (8 blocks).
+const CHAIN_FRAMES: usize = 8 * BLOCK;
+
+fn chain(config: &Config) {
+    let mut m = config.modulator().unwrap();
+    let mut input = [0i32; CHAIN_FRAMES * CH];
+    Signal::new(config.input_hz, usize::MAX).fill(&mut input);
+    let mut out = [0u16; MAX_BLOCK_WORDS];
+    let words = BLOCK * m.words_per_frame();
+    let out = &mut out[..words];
+    let updates_per_block = BLOCK * m.updates_per_frame() * CH;
+    let blocks = TARGET_UPDATES.div_ceil(updates_per_block);
+    // Warm the state (filters, shaper) on one pass first.
+    tt_chain_blocks(&mut m, &input, out, CHAIN_FRAMES / BLOCK);
+    let empty = instructions(|| tt_chain_blocks_empty(&input, out, blocks));
+    let full = instructions(|| tt_chain_blocks(&mut m, &input, out, blocks));
+    report(
+        config.name,
+        full as i64 - empty as i64,
+        blocks * updates_per_block,
+    );
+}
+
+#[entry]
+fn main() -> ! {
+    let mut cp = cortex_m::Peripherals::take().unwrap();
+    cp.SYST.set_clock_source(SystClkSource::Core);
+    cp.SYST.set_reload(0x00FF_FFFF);
+    cp.SYST.clear_current();
+    cp.SYST.enable_counter();
+
+    calibrate();
+    stages();
+    for config in CONFIGS {
+        chain(config);
+    }
+    for config in CONFIGS {
+        let r = workload::run_checksum(config).unwrap();
+        hprintln!("checksum {} {:016x}", config.name, r.checksum);
+    }
+    debug::exit(debug::EXIT_SUCCESS);
+    #[allow(clippy::empty_loop)]
+    loop {}
+}
