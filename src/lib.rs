@@ -8,6 +8,7 @@
 extern crate std;
 
 pub mod bridge;
+pub mod crossing;
 pub mod edge;
 pub mod error;
 pub mod modulator;
