@@ -187,6 +187,9 @@ fn stages() {
     let mut edge = EdgeSolver::try_new(&timer, Sampling::Uniform).unwrap();
     time_stage("edge-uniform", &xs, |xs| tt_loop_edge(&mut edge, xs));
 
+    let mut edge = EdgeSolver::try_new(&timer, Sampling::NATURAL).unwrap();
+    time_stage("edge-natural-cubic1", &xs, |xs| tt_loop_edge(&mut edge, xs));
+
     // High counts (Q16 ticks) for the requantiser.
     let mut edge = EdgeSolver::try_new(&timer, Sampling::Uniform).unwrap();
     let mut hs = [0i32; STAGE_LEN];

@@ -9,6 +9,7 @@
 //! turns into integers once.
 
 use ticktone::bridge::{BridgeKind, BridgeSpec, DeadTimeForm};
+use ticktone::edge::Sampling;
 use ticktone::timer::{Edge, TimerSpec, UpdateScheme};
 use ticktone::{ConfigError, Counters, Modulator, ModulatorSpec};
 
@@ -79,6 +80,14 @@ pub const CONFIGS: &[Config] = &[
         name: "chain-uniform-round-full3-r1",
         input_hz: 768_000,
         spec: || ModulatorSpec::new(timer_updown_double(), bridge_full3(), 768e3),
+    },
+    Config {
+        name: "chain-natural-round-full3-r1",
+        input_hz: 768_000,
+        spec: || ModulatorSpec {
+            sampling: Sampling::NATURAL,
+            ..ModulatorSpec::new(timer_updown_double(), bridge_full3(), 768e3)
+        },
     },
     Config {
         name: "chain-uniform-round-full3sep-r1",
