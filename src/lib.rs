@@ -20,6 +20,8 @@ pub mod timer;
 
 #[cfg(feature = "std")]
 pub mod rebuild;
+#[cfg(feature = "std")]
+pub mod oversample_design;
 
 pub use bridge::{Bridge, BridgeKind, BridgeSpec, DeadTimeForm, LegMode};
 pub use edge::Sampling;
