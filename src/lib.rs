@@ -19,6 +19,8 @@ pub mod sample;
 pub mod timer;
 
 #[cfg(feature = "std")]
+pub mod lab;
+#[cfg(feature = "std")]
 pub mod rebuild;
 #[cfg(feature = "std")]
 pub mod oversample_design;
