@@ -122,6 +122,19 @@ pub enum ConfigError {
         /// Ticks available on each side of the mid point.
         available: u32,
     },
+    /// Too many noise-shaper zeros at half the update rate.
+    ShaperHalfRateZeros {
+        /// Zeros asked for.
+        zeros: u8,
+        /// Highest number supported.
+        max: u8,
+    },
+    /// The update rate is not above twice the 20 kHz band the noise shaper
+    /// works for.
+    ShaperBand {
+        /// Update rate, Hz.
+        update_hz: f64,
+    },
     /// Natural sampling parameters out of range.
     NaturalSampling {
         /// Interpolation order asked for.
@@ -202,6 +215,14 @@ impl fmt::Display for ConfigError {
             ShaperHeadroom { needs, available } => write!(
                 f,
                 "noise shaper needs {needs} ticks of headroom but only {available} are available"
+            ),
+            ShaperHalfRateZeros { zeros, max } => write!(
+                f,
+                "noise shaper: {zeros} zeros at half the update rate is above the highest supported, {max}"
+            ),
+            ShaperBand { update_hz } => write!(
+                f,
+                "noise shaping needs an update rate above 40000 Hz (twice the 20 kHz band), got {update_hz} Hz"
             ),
             NaturalSampling { order, iterations } => write!(
                 f,

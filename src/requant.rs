@@ -1,13 +1,39 @@
 //! Requantiser: a high count with [`FRAC_BITS`] fraction bits becomes a
-//! whole number of ticks.
+//! whole number of ticks, with the rounding error shaped out of the audio
+//! band by error feedback and, optionally, TPDF dither.
 //!
-//! Before rounding, the value is clamped to the range the bridge allows
-//! (minimum pulse, dead time, bootstrap refresh) narrowed by the headroom
-//! the rounding needs, so that the rounded value can never leave the bridge's
-//! range: the bridge does not check again. Each clamp is counted.
+//! # Loop
+//! For each update, with `v` the high count (Q16 ticks) after the input
+//! clamp, and the NTF's integer coefficients `c`, `d` (see [`crate::ntf`]):
+//!
+//! ```text
+//! u    = v + round(sum c_i s[n-i])          feedback (i64 accumulation)
+//! q    = floor(u + dither + 1/2)             the tick written
+//! e    = q - u                               total error, Q16
+//! s[n] = e - round(sum d_i s[n-i])           poles (IIR NTFs only)
+//! ```
+//!
+//! so that `q - v = NTF(z) e`, exactly up to the 2^-17-tick roundings of
+//! the two sums.
+//!
+//! # No overload, by construction
+//! The quantiser's own rounding error `q - (u + dither)` is within half a
+//! tick whenever `u + dither` stays inside `[low - 1/2, high + 1/2)`. The
+//! feedback `u - v` is bounded by `(sum|h| - 1) * max|e|` (plus the tiny
+//! sum roundings), with `max|e|` = 1/2 tick, or 3/2 with dither of at most
+//! 1 tick. So the input clamp narrows the range by that *headroom* (and the
+//! dither peak) on each side, the shaped output can never leave
+//! `[low, high]`, and the error never grows: a clamped input is counted
+//! and the shaper carries on. A last guard on `q` counts
+//! [`ClampCounts::overload`], which the proof says stays 0 (tests check).
+//!
+//! [`Requantiser::max_modulation`] gives the largest |x| (fraction of full
+//! scale) that passes unclamped.
 
+use crate::dither::{Tpdf, TPDF_PEAK_Q16};
 use crate::edge::FRAC_BITS;
 use crate::error::ConfigError;
+use crate::ntf::{Ntf, NtfPoles, NtfSpec, NtfZeros, COEF_FRAC_BITS, MAX_TAPS};
 use crate::timer::Timer;
 
 /// Clamp counts of a requantiser, in updates.
@@ -18,16 +44,27 @@ pub struct ClampCounts {
     pub low: u32,
     /// Updates whose high count was lowered to the highest allowed.
     pub high: u32,
+    /// Updates where the shaped tick itself had to be clamped: never, by
+    /// the headroom bound (a non-zero count is a bug).
+    pub overload: u32,
 }
 
 /// How the rounding error is shaped.
 #[derive(Clone, Copy, Debug, PartialEq, Eq)]
 #[cfg_attr(feature = "defmt", derive(defmt::Format))]
 pub struct ShaperSpec {
-    /// Noise-shaper order; 0 is plain rounding.
+    /// Noise-shaper order: zeros in the audio band, 0..=6; 0 is plain
+    /// rounding.
     pub order: u8,
-    /// Add TPDF dither before rounding.
+    /// Add TPDF dither (+/- 1 tick) before rounding, inside the loop.
     pub dither: bool,
+    /// Placement of the in-band zeros.
+    pub zeros: NtfZeros,
+    /// Zeros at half the update rate, 0..=4: 2 or 3 for a half bridge or a
+    /// 2-level full bridge with two updates a period; 0 otherwise.
+    pub half_rate_zeros: u8,
+    /// Pole set (FIR or a bound on sum |h|).
+    pub poles: NtfPoles,
 }
 
 impl ShaperSpec {
@@ -35,49 +72,181 @@ impl ShaperSpec {
     pub const ROUND: Self = Self {
         order: 0,
         dither: false,
+        zeros: NtfZeros::Band,
+        half_rate_zeros: 0,
+        poles: NtfPoles::None,
     };
+
+    /// `order` band-optimised zeros, no zeros at half the update rate,
+    /// poles for sum |h| <= 8, no dither.
+    pub const fn new(order: u8) -> Self {
+        Self {
+            order,
+            dither: false,
+            zeros: NtfZeros::Band,
+            half_rate_zeros: 0,
+            poles: NtfPoles::Sum8,
+        }
+    }
+
+    /// Same with dither on or off.
+    pub const fn with_dither(mut self, dither: bool) -> Self {
+        self.dither = dither;
+        self
+    }
+
+    /// Same with another in-band zero placement.
+    pub const fn with_zeros(mut self, zeros: NtfZeros) -> Self {
+        self.zeros = zeros;
+        self
+    }
+
+    /// Same with `k` zeros at half the update rate.
+    pub const fn with_half_rate_zeros(mut self, k: u8) -> Self {
+        self.half_rate_zeros = k;
+        self
+    }
+
+    /// Same with another pole set.
+    pub const fn with_poles(mut self, poles: NtfPoles) -> Self {
+        self.poles = poles;
+        self
+    }
+
+    /// The NTF part of the spec.
+    pub const fn ntf_spec(&self) -> NtfSpec {
+        NtfSpec {
+            order: self.order,
+            zeros: self.zeros,
+            half_rate_zeros: self.half_rate_zeros,
+            poles: self.poles,
+        }
+    }
 }
 
-/// Rounds high counts to ticks within `[low, high]`.
+/// Rounds high counts to ticks within `[low, high]`, shaping the error.
 #[derive(Clone, Debug)]
 pub struct Requantiser {
-    /// Lowest input accepted (Q16), so that the output is >= `low` ticks.
+    /// Lowest input accepted (Q16).
     in_low: i32,
-    /// Highest input accepted (Q16), so that the output is <= `high` ticks.
+    /// Highest input accepted (Q16).
     in_high: i32,
+    /// Output range in ticks (the guard).
+    q_low: i32,
+    q_high: i32,
+    ntf: Ntf,
+    iir: bool,
+    dither: bool,
+    prng: Tpdf,
+    state: [i32; MAX_TAPS],
+    headroom_q16: i32,
+    top: u32,
     counts: ClampCounts,
 }
 
 const HALF: i32 = 1 << (FRAC_BITS - 1);
+const COEF_HALF: i64 = 1 << (COEF_FRAC_BITS - 1);
 
 impl Requantiser {
     /// A requantiser for `timer` whose output stays within `[low, high]`
-    /// ticks.
+    /// ticks. The NTF is designed for the timer's update rate.
     ///
     /// # Errors
-    /// [`ConfigError::NoUsableDuty`] if `low > high`;
-    /// [`ConfigError::ShaperOrder`] for a shaper not built yet.
+    /// [`ConfigError::NoUsableDuty`] if `low > high`; the NTF design errors
+    /// of [`Ntf::design`]; [`ConfigError::ShaperHeadroom`] when the headroom
+    /// (plus dither) leaves no input range, or the filter state could
+    /// overflow its format.
     pub fn try_new(
-        _timer: &Timer,
+        timer: &Timer,
         low: u32,
         high: u32,
         shaper: ShaperSpec,
     ) -> Result<Self, ConfigError> {
-        if shaper.order > 0 || shaper.dither {
-            return Err(ConfigError::ShaperOrder {
-                order: shaper.order,
-                max: 0,
-            });
-        }
         if low > high {
             return Err(ConfigError::NoUsableDuty { low, high });
         }
+        let ntf = Ntf::design(shaper.ntf_spec(), timer.update_rate_hz())?;
+        let dither_peak = if shaper.dither { TPDF_PEAK_Q16 } else { 0 };
+        // Largest |e| = |q - u|, Q16: rounding half a tick plus the dither.
+        let e_max = (HALF + dither_peak) as f64;
+        let s = ntf.sum_abs_h();
+        let w_max = if ntf.taps() == 0 {
+            0.0
+        } else {
+            // (S - 1) max|e| plus the sums' roundings (S/2 LSB) and margin.
+            (s - 1.0) * e_max + s + 2.0
+        };
+        // Whole Q16 LSBs at or above the bound.
+        let room = if ntf.taps() == 0 { 0 } else { w_max as i64 + 1 } + dither_peak as i64;
+        let available = (high - low) / 2;
+        let needs = ((room + (1 << FRAC_BITS) - 1) >> FRAC_BITS) as u32;
+        let in_low = ((low as i64) << FRAC_BITS) - HALF as i64 + room;
+        let in_high = ((high as i64) << FRAC_BITS) + HALF as i64 - 1 - room;
+        if in_low > in_high || in_high > i32::MAX as i64 / 2 {
+            return Err(ConfigError::ShaperHeadroom { needs, available });
+        }
+        // State |s| <= (max|e| + 1) sum|g|; products and sums must fit.
+        let s_max = (e_max + 1.0) * ntf.sum_abs_g() + 1.0;
+        let coef_sum: f64 = ntf
+            .feedback_coefs()
+            .iter()
+            .chain(ntf.pole_coefs())
+            .map(|&c| (c as f64).abs())
+            .sum();
+        if !(s_max < (1u64 << 30) as f64 && coef_sum * s_max < (1u64 << 61) as f64) {
+            return Err(ConfigError::ShaperHeadroom {
+                needs: u32::MAX,
+                available,
+            });
+        }
         Ok(Self {
-            in_low: (low << FRAC_BITS) as i32,
-            // round(v) <= high  <=>  v < high + 0.5
-            in_high: ((high << FRAC_BITS) as i32) + HALF - 1,
+            in_low: in_low as i32,
+            in_high: in_high as i32,
+            q_low: low as i32,
+            q_high: high as i32,
+            iir: !ntf.is_fir(),
+            ntf,
+            dither: shaper.dither,
+            prng: Tpdf::new(0),
+            state: [0; MAX_TAPS],
+            headroom_q16: room as i32,
+            top: timer.top(),
             counts: ClampCounts::default(),
         })
+    }
+
+    /// The NTF as implemented.
+    pub const fn ntf(&self) -> &Ntf {
+        &self.ntf
+    }
+
+    /// Headroom kept on each side of the range, Q16 ticks: the largest
+    /// |u + dither - v| the shaper can produce.
+    pub const fn headroom_q16(&self) -> i32 {
+        self.headroom_q16
+    }
+
+    /// Headroom in whole ticks, rounded up.
+    pub const fn headroom_ticks(&self) -> u32 {
+        ((self.headroom_q16 + (1 << FRAC_BITS) - 1) >> FRAC_BITS) as u32
+    }
+
+    /// Lowest and highest input (Q16 high count) passed without clamping.
+    pub const fn input_range_q16(&self) -> (i32, i32) {
+        (self.in_low, self.in_high)
+    }
+
+    /// Largest modulation |x| (fraction of full scale, high count
+    /// `(1 + x)/2 * top`) that passes without clamping on both sides, at
+    /// most 1; 0 if the range does not contain the mid point.
+    pub fn max_modulation(&self) -> f32 {
+        let mid = (self.top as i64) << (FRAC_BITS - 1);
+        let room = (self.in_high as i64 - mid).min(mid - self.in_low as i64);
+        if room <= 0 || self.top == 0 {
+            0.0
+        } else {
+            (room as f64 / mid as f64).min(1.0) as f32
+        }
     }
 
     /// Clamp counts so far.
@@ -90,9 +259,27 @@ impl Requantiser {
         self.counts = ClampCounts::default();
     }
 
-    /// Clamp (counted) and round to the nearest tick, halves up.
+    /// Clear the filter state (not the counts, not the dither sequence).
+    pub fn reset(&mut self) {
+        self.state = [0; MAX_TAPS];
+    }
+
+    /// Restart the dither sequence from `seed` (give each channel its own).
+    pub fn reseed(&mut self, seed: u32) {
+        self.prng = Tpdf::new(seed);
+    }
+
+    /// Clamp (counted), shape and round to a whole tick.
     #[inline]
     pub fn quantise(&mut self, v: i32) -> u32 {
+        self.quantise_traced(v).0
+    }
+
+    /// [`Requantiser::quantise`], also returning the quantiser's own
+    /// rounding error `q - (u + dither)` in Q16 ticks, within
+    /// `(-1/2, +1/2]` tick unless the shaper overloads.
+    #[inline]
+    pub fn quantise_traced(&mut self, v: i32) -> (u32, i32) {
         let v = if v < self.in_low {
             self.counts.low = self.counts.low.wrapping_add(1);
             self.in_low
@@ -102,14 +289,57 @@ impl Requantiser {
         } else {
             v
         };
-        round_to_ticks(v)
+        macro_rules! dispatch {
+            ($($n:literal)*) => {
+                match (self.ntf.taps(), self.iir) {
+                    $(($n, false) => self.step::<$n, false>(v),
+                      ($n, true) => self.step::<$n, true>(v),)*
+                    _ => self.step::<0, false>(v),
+                }
+            };
+        }
+        dispatch!(1 2 3 4 5 6 7 8 9 10)
     }
-}
 
-/// Nearest whole tick of a non-negative Q16 value, halves up.
-#[inline(always)]
-pub(crate) fn round_to_ticks(v: i32) -> u32 {
-    ((v + HALF) >> FRAC_BITS) as u32
+    /// One update with a filter of `M` taps, with or without poles.
+    #[inline(always)]
+    fn step<const M: usize, const IIR: bool>(&mut self, v: i32) -> (u32, i32) {
+        const { assert!(M <= MAX_TAPS) };
+        let c = self.ntf.feedback_coefs();
+        let d = self.ntf.pole_coefs();
+        let mut acc_c = COEF_HALF;
+        let mut acc_d = COEF_HALF;
+        for i in 0..M {
+            let s = self.state[i] as i64;
+            acc_c += c[i] as i64 * s;
+            if IIR {
+                acc_d += d[i] as i64 * s;
+            }
+        }
+        let u = v + (acc_c >> COEF_FRAC_BITS) as i32;
+        let dith = if self.dither { self.prng.next_q16() } else { 0 };
+        let ud = u + dith;
+        let mut q = (ud + HALF) >> FRAC_BITS;
+        if q < self.q_low {
+            self.counts.overload = self.counts.overload.wrapping_add(1);
+            q = self.q_low;
+        } else if q > self.q_high {
+            self.counts.overload = self.counts.overload.wrapping_add(1);
+            q = self.q_high;
+        }
+        let r = (q << FRAC_BITS) - ud;
+        if M > 0 {
+            let e = r + dith;
+            let sn = if IIR {
+                e - (acc_d >> COEF_FRAC_BITS) as i32
+            } else {
+                e
+            };
+            self.state.copy_within(0..M.saturating_sub(1), 1);
+            self.state[0] = sn;
+        }
+        (q as u32, r)
+    }
 }
 
 #[cfg(test)]
@@ -125,6 +355,32 @@ mod tests {
         assert_eq!(q.quantise(0), 3);
         assert_eq!(q.quantise(128 << FRAC_BITS), 120);
         assert_eq!(q.quantise((120 << FRAC_BITS) + HALF - 1), 120);
-        assert_eq!(q.counts(), ClampCounts { low: 1, high: 1 });
+        // Just below low - 1/2 rounds to low - 1: clamped and counted.
+        assert_eq!(q.quantise((3 << FRAC_BITS) - HALF - 1), 3);
+        assert_eq!(
+            q.counts(),
+            ClampCounts {
+                low: 2,
+                high: 1,
+                overload: 0
+            }
+        );
+    }
+
+    #[test]
+    fn headroom_shrinks_modulation() {
+        // FIR (1 - z^-1)^2: sum |h| = 4 (REFERENCES.md section 4), so the
+        // feedback is within 1.5 ticks and each side loses 1.5 ticks (+ a
+        // few LSB of rounding margin) over plain rounding.
+        let t = Timer::try_new(crate::timer::TimerSpec::new(98.304e6, 384e3)).unwrap();
+        let round = Requantiser::try_new(&t, 0, 128, ShaperSpec::ROUND).unwrap();
+        let spec = ShaperSpec::new(2)
+            .with_zeros(NtfZeros::Dc)
+            .with_poles(NtfPoles::None);
+        let sh = Requantiser::try_new(&t, 0, 128, spec).unwrap();
+        let lost = sh.input_range_q16().0 - round.input_range_q16().0 - (3 << (FRAC_BITS - 1));
+        assert!((0..16).contains(&lost), "lost {lost}");
+        assert_eq!(sh.headroom_ticks(), 2);
+        assert!(sh.max_modulation() < round.max_modulation());
     }
 }
