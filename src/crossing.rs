@@ -78,7 +78,26 @@ impl Poly {
     /// The line through node 0 and node 1 (Q1.31 samples).
     #[inline(always)]
     pub fn linear(x0: i32, x1: i32) -> Self {
-        let (s0, s1) = (x0 >> 5, x1 >> 5); // Q26, |s| <= 1
+        Self::linear26(x0 >> 5, x1 >> 5)
+    }
+
+    /// The parabola through the node before the slot, node 0 and node 1
+    /// (`σ = −3, −1, 1`): Lagrange interpolation needing no later sample.
+    #[inline(always)]
+    pub fn quadratic(xm1: i32, x0: i32, x1: i32) -> Self {
+        Self::quadratic26(xm1 >> 5, x0 >> 5, x1 >> 5)
+    }
+
+    /// The cubic through four nodes (`σ = −3, −1, 1, 3`): Lagrange
+    /// interpolation centred on the slot.
+    #[inline(always)]
+    pub fn cubic(xm1: i32, x0: i32, x1: i32, x2: i32) -> Self {
+        Self::cubic26(xm1 >> 5, x0 >> 5, x1 >> 5, x2 >> 5)
+    }
+
+    /// [`Poly::linear`] from samples already shifted to Q26 (`x >> 5`).
+    #[inline(always)]
+    pub(crate) fn linear26(s0: i32, s1: i32) -> Self {
         Self {
             d0: s0 + s1,        // (x0 + x1) / 2 in Q27, |.| <= 1
             d1: (s1 - s0) << 1, // (x1 - x0) / 2 in Q28, |.| <= 1
@@ -87,11 +106,9 @@ impl Poly {
         }
     }
 
-    /// The parabola through the node before the slot, node 0 and node 1
-    /// (`σ = −3, −1, 1`): Lagrange interpolation needing no later sample.
+    /// [`Poly::quadratic`] from Q26 samples.
     #[inline(always)]
-    pub fn quadratic(xm1: i32, x0: i32, x1: i32) -> Self {
-        let (sm, s0, s1) = (xm1 >> 5, x0 >> 5, x1 >> 5);
+    pub(crate) fn quadratic26(sm: i32, s0: i32, s1: i32) -> Self {
         Self {
             // (-xm1 + 6 x0 + 3 x1) / 8: the Q26 sum (|.| <= 10) is 8 d0.
             d0: (3 * (s0 + s0 + s1) - sm) >> 2,
@@ -102,11 +119,9 @@ impl Poly {
         }
     }
 
-    /// The cubic through four nodes (`σ = −3, −1, 1, 3`): Lagrange
-    /// interpolation centred on the slot.
+    /// [`Poly::cubic`] from Q26 samples.
     #[inline(always)]
-    pub fn cubic(xm1: i32, x0: i32, x1: i32, x2: i32) -> Self {
-        let (sm, s0, s1, s2) = (xm1 >> 5, x0 >> 5, x1 >> 5, x2 >> 5);
+    pub(crate) fn cubic26(sm: i32, s0: i32, s1: i32, s2: i32) -> Self {
         let (sum_in, sum_out) = (s0 + s1, sm + s2); // Q26, |.| <= 2
         let (dif_in, dif_out) = (s1 - s0, s2 - sm);
         // d3 = (dif_out - 3 dif_in) / 48; the Q26 difference (|.| <= 8)
@@ -130,6 +145,16 @@ impl Poly {
         Self {
             d1: -self.d1,
             d3: -self.d3,
+            ..self
+        }
+    }
+
+    /// Reversed if `mask` is −1, unchanged if 0 (branch-free).
+    #[inline(always)]
+    pub(crate) fn reversed_if(self, mask: i32) -> Self {
+        Self {
+            d1: (self.d1 ^ mask) - mask,
+            d3: (self.d3 ^ mask) - mask,
             ..self
         }
     }

@@ -222,10 +222,12 @@ impl<const CH: usize> Modulator<CH> {
                 channel
                     .over
                     .push(s.to_q31(&mut self.input_clamped), &mut fine);
+                // Signal values become high counts, a block at a time.
+                channel.edge.process(&mut fine[..self.ratio]);
                 // Update u of channel ch starts at word (u * CH + ch) * wpu.
                 let dsts = words.chunks_exact_mut(wpu).skip(ch).step_by(CH);
-                for (&x, dst) in fine[..self.ratio].iter().zip(dsts) {
-                    let c = channel.quant.quantise(channel.edge.next(x));
+                for (&h, dst) in fine[..self.ratio].iter().zip(dsts) {
+                    let c = channel.quant.quantise(h);
                     let w: [u32; MAX_WORDS] = self.bridge.words(c);
                     for (d, &v) in dst.iter_mut().zip(&w) {
                         *d = W::from_ticks(v);
