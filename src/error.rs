@@ -203,7 +203,7 @@ impl fmt::Display for ConfigError {
             ),
             OversamplingRatio { ratio } => write!(
                 f,
-                "oversampling ratio {ratio} is not supported (1, 2, 4, 8 or 16)"
+                "oversampling ratio {ratio} is not supported (1, 2, 4, 6, 8, 12 or 16)"
             ),
             RatesNotLocked { input_hz, update_hz } => write!(
                 f,

@@ -1,10 +1,21 @@
 //! Oversampler: polyphase interpolation from the input rate to the update
-//! rate by a cascade of half-band stages.
+//! rate by a cascade of half-band stages and, for ratios 6 and 12, one
+//! third-band stage.
 //!
 //! # Supported ratios
-//! 1 (input already at the update rate), 2, 4, 8 and 16: one to four
-//! half-band stages, each doubling the rate. Ratio `2^n` runs the first `n`
-//! stages; a stage's filter depends only on its place in the cascade.
+//! - 1: the input is already at the update rate (copied through).
+//! - 2, 4, 8, 16: one to four half-band stages, each doubling the rate.
+//!   Ratio `2^n` runs the first `n`; a stage's filter depends only on its
+//!   place in the cascade.
+//! - 6: half-band stage 1, then an interpolator by 3 ([`THIRD_SUM`]).
+//! - 12: as 6, then half-band stage 3 (as fractions of its rate, its
+//!   passband is wider and its stopband starts lower than this place
+//!   needs).
+//!
+//! The sharp filter always runs first, at twice the input rate, where it is
+//! cheapest. Other ratios (3, 5, 10, ...) are not built: a ratio of 3 would
+//! need the sharp 20 to 24.1 kHz transition in a filter by 3 (about 230
+//! taps).
 //!
 //! # Response (measured on the integer tables, `tests/oversample.rs`)
 //! Designed for the lowest input rate, 44.1 kHz, where the first stage's
@@ -21,20 +32,25 @@
 //! - Delay: [`Oversampler::delay_updates`], linear phase.
 //!
 //! # Cost
-//! Stage `k` has [`STAGE_PAIRS`]`[k-1]` coefficient pairs and runs
-//! `2^(k-1)` times per input sample; half the outputs of each stage are a
-//! copy of its input (the centre tap), the other half take one multiply per
-//! symmetric pair after a pre-add. Multiply-accumulates per input sample
-//! ([`Oversampler::macs_per_input`]): 35 at 2x, 47 at 4x, 63 at 8x, 87 at
-//! 16x; per update 17.5, 11.75, 7.9 and 5.4.
+//! Half-band stage `k` has [`STAGE_PAIRS`]`[k-1]` coefficient pairs; half
+//! its outputs are a copy of its input (the centre tap), the other half take
+//! one multiply per symmetric pair after a pre-add. The third-band stage
+//! copies one output in three and computes the other two, mirror images of
+//! each other, from one sum and one difference per pair: 14
+//! multiply-accumulates for both. Per input sample
+//! ([`Oversampler::macs_per_input`]): 35 at 2x, 47 at 4x, 63 at 6x, 63 at
+//! 8x, 87 at 12x, 87 at 16x; per update 17.5, 11.75, 10.5, 7.9, 7.25 and
+//! 5.4.
 //!
 //! Measured on an emulated Cortex-M4 (QEMU `mps2-an386`, `-icount
-//! shift=0`, release build with fat LTO, random input), instructions per
-//! update including the call: 113 at 2x, 85.5 at 4x, 62 at 8x, 45 at 16x
-//! (226, 342, 498 and 720 per input sample). A multiply-accumulate costs
-//! five instructions in the long first stage (two data loads, the pre-add,
-//! the coefficient load, `SMLAL`); the short later stages add the per-output
-//! work (saturation, flag, two stores) and some register spills.
+//! shift=0`, release build with fat LTO, random input, the call from a
+//! sample loop included), instructions per update: 113.5 at 2x, 87 at 4x,
+//! 75 at 6x, 63 at 8x, 55.5 at 12x, 46 at 16x (227, 348, 449, 504, 666 and
+//! 735 per input sample). A multiply-accumulate costs five instructions in
+//! the long first stage (two data loads, the pre-add, the coefficient load,
+//! `SMLAL`); the short later stages add per-output work (saturation, flag,
+//! two stores) and register spills, about 9 instructions a
+//! multiply-accumulate.
 //!
 //! # Arithmetic (bit-exact, integer only)
 //! - Input Q1.31. Delay lines hold Q2.30 (one guard bit), so the pre-add of
@@ -84,6 +100,21 @@ const S2: usize = 12;
 const S3: usize = 8;
 const S4: usize = 8;
 
+/// Taps a branch of the third-band stage spans, `2P`, over its inputs.
+const P3: usize = 7;
+const W3X: usize = 2 * P3;
+/// Ring of the third-band stage (2 inputs a call) and of the half-band that
+/// follows it at 12x (6 inputs a call).
+const ST: usize = 14;
+const NT: usize = 2;
+const SB: usize = 12;
+const NB: usize = 6;
+
+/// Path through the stages.
+const THROUGH: u8 = 0;
+const SIX: u8 = 5;
+const TWELVE: u8 = 6;
+
 /// Stage 1 (input rate to 2x): Q1.31 coefficients of taps +-1, +-3, ...,
 /// +-69 of the gain-2 half-band interpolator. Designed by
 /// [`crate::oversample_design`] (Remez, passband edge 20 kHz at 88.2 kHz).
@@ -104,6 +135,21 @@ pub const STAGE3: [i32; K3] = [1290273422, -267503167, 57527356, -6556434];
 
 /// Stage 4 (8x to 16x): taps +-1 ... +-5.
 pub const STAGE4: [i32; K4] = [1260282416, -212725769, 26185517];
+
+/// Third-band interpolator by 3 (ratios 6 and 12: 2x to 6x): the two
+/// computed branches as sum and difference of mirrored coefficient pairs.
+/// With `d` the `2P` taps of branch 1 (taps `3k + 1`, `k = -P..P`), oldest
+/// input first, `THIRD_SUM[i] = (d[i] + d[2P-1-i]) / 2` and
+/// `THIRD_DIFF[i] = (d[i] - d[2P-1-i]) / 2`, Q1.31. Designed by
+/// [`crate::oversample_design`] (Kaiser-windowed sinc, 41 taps).
+pub const THIRD_SUM: [i32; P3] = [
+    93972, -1496805, 9357101, -37103817, 112565695, -307556787, 1297880105,
+];
+
+/// See [`THIRD_SUM`].
+pub const THIRD_DIFF: [i32; P3] = [
+    -54427, 527744, -2410662, 7485018, -19069264, 52244897, -455079347,
+];
 
 /// The four tables in cascade order.
 pub const fn stage_tables() -> [&'static [i32]; 4] {
@@ -129,6 +175,8 @@ const _: () = {
     assert!(abs_sum(&STAGE2) < limit);
     assert!(abs_sum(&STAGE3) < limit);
     assert!(abs_sum(&STAGE4) < limit);
+    // Third band: |sum +- diff| <= (sum|e| + sum|f|) x 2^62 < 2^63.
+    assert!(abs_sum(&THIRD_SUM) + abs_sum(&THIRD_DIFF) < 7i64 << 29);
 };
 
 /// Full scale in the Q3.29 high word.
@@ -149,6 +197,29 @@ fn odd_phase<const K: usize, const W: usize>(w: &[i32; W], c: &[i32; K]) -> i32 
     (acc >> 32) as i32
 }
 
+/// Accumulate the listed coefficient pairs, written out one by one so that
+/// the long first stage compiles to straight-line loads and
+/// multiply-accumulates whatever the optimiser's loop-unrolling budget.
+macro_rules! pairs_unrolled {
+    ($acc:ident, $w:ident, $c:ident, $k:expr; $($j:literal)*) => {
+        $(
+            let pair = $w[$k - 1 - $j].wrapping_add($w[$k + $j]);
+            $acc = $acc.wrapping_add(pair as i64 * $c[$j] as i64);
+        )*
+    };
+}
+
+/// [`odd_phase`] for stage 1, unrolled.
+#[inline(always)]
+fn odd_phase_head(w: &[i32; W1], c: &[i32; K1]) -> i32 {
+    const { assert!(K1 == 35) };
+    let mut acc = 0i64;
+    pairs_unrolled!(acc, w, c, K1;
+        0 1 2 3 4 5 6 7 8 9 10 11 12 13 14 15 16 17 18 19
+        20 21 22 23 24 25 26 27 28 29 30 31 32 33 34);
+    (acc >> 32) as i32
+}
+
 /// The two outputs of a stage for one window: the computed sample then the
 /// centre-tap copy, scaled by `SHIFT` (1: Q2.30 for the next stage; 2:
 /// Q1.31 out). Saturation is recorded in `flags`.
@@ -158,9 +229,7 @@ fn stage_pair<const K: usize, const W: usize, const SHIFT: u32>(
     c: &[i32; K],
     flags: &mut u32,
 ) -> [i32; 2] {
-    let y = odd_phase(w, c);
-    let s = y.clamp(Q29_MIN, Q29_MAX);
-    *flags |= (y ^ s) as u32;
+    let s = saturate(odd_phase(w, c), flags);
     [s << SHIFT, w[K] << (SHIFT - 1)]
 }
 
@@ -193,7 +262,8 @@ fn run_head<const SHIFT: u32>(
     ring[p] = x;
     ring[p + W1] = x;
     if let Some(w) = ring.get(p + 1..).and_then(|s| s.first_chunk::<W1>()) {
-        *dst = stage_pair::<K1, W1, SHIFT>(w, c, flags);
+        let y = saturate(odd_phase_head(w, c), flags);
+        *dst = [y << SHIFT, w[K1] << (SHIFT - 1)];
     }
 }
 
@@ -270,11 +340,92 @@ fn run_ring<
     *pos = q + N;
 }
 
+/// Saturate a Q3.29 high word to full scale, recording a clamp in `flags`.
+#[inline(always)]
+fn saturate(y: i32, flags: &mut u32) -> i32 {
+    let s = y.clamp(Q29_MIN, Q29_MAX);
+    *flags |= (y ^ s) as u32;
+    s
+}
+
+/// Run the third-band stage over its `N` new inputs (in the ring's upper
+/// copies, as for [`run_ring`]), writing `M = 3N` outputs per input: branch
+/// 1, branch 2, then the centre-tap copy, scaled by `SHIFT`.
+///
+/// Branch 2's taps are branch 1's reversed, so with `a = w[i]` and
+/// `b = w[2P-1-i]` the two outputs are `sum e_i (a + b) -+ sum f_i (a - b)`:
+/// `2P` multiply-accumulates for both instead of `4P`. Each output is one
+/// `i64` sum, floored once to its high word.
+#[inline(never)]
+fn run_third<
+    const N: usize,
+    const S: usize,
+    const R: usize,
+    const LEN: usize,
+    const M: usize,
+    const SHIFT: u32,
+>(
+    ring: &mut [i32; R],
+    pos: &mut usize,
+    e: &[i32; P3],
+    f: &[i32; P3],
+    dst: &mut [i32; M],
+    flags: &mut u32,
+) {
+    const {
+        assert!(
+            R == 2 * S && S.is_multiple_of(N) && S + 1 >= W3X && LEN == W3X - 1 + N && M == 3 * N
+        )
+    };
+    let (e, f) = (opaque(e), opaque(f));
+    let q = batch_base::<S, N>(*pos);
+    let mut fl = 0u32;
+    if let Some(line) = ring
+        .get(q + S + 1 - W3X..)
+        .and_then(|s| s.first_chunk::<LEN>())
+    {
+        for (i, d) in dst.chunks_exact_mut(3).enumerate() {
+            if let Some(w) = line.get(i..).and_then(|s| s.first_chunk::<W3X>()) {
+                let (mut sum, mut diff) = (0i64, 0i64);
+                for j in 0..P3 {
+                    let (a, b) = (w[j], w[W3X - 1 - j]);
+                    // Q2.30 within [-1, 1): sum and difference fit in i32.
+                    sum = sum.wrapping_add(a.wrapping_add(b) as i64 * e[j] as i64);
+                    diff = diff.wrapping_add(a.wrapping_sub(b) as i64 * f[j] as i64);
+                }
+                let y1 = saturate((sum.wrapping_sub(diff) >> 32) as i32, &mut fl);
+                let y2 = saturate((sum.wrapping_add(diff) >> 32) as i32, &mut fl);
+                d.copy_from_slice(&[y1 << SHIFT, y2 << SHIFT, w[P3] << (SHIFT - 1)]);
+            }
+        }
+    }
+    let (lower, upper) = ring.split_at_mut(S);
+    if let (Some(a), Some(b)) = (lower.get_mut(q..q + N), upper.get(q..q + N)) {
+        a.copy_from_slice(b);
+    }
+    *flags |= fl;
+    *pos = q + N;
+}
+
 /// Interpolates each input sample to `ratio` samples at the update rate.
+///
+/// ```
+/// use ticktone::oversample::{Oversampler, MAX_RATIO};
+/// let mut o = Oversampler::try_new(8).unwrap();
+/// let mut out = [0i32; MAX_RATIO];
+/// // A constant settles to itself: the DC gain is 1 within the passband
+/// // ripple (about 5e-6), so within 2e-5 of full scale (42 950 in Q1.31).
+/// for _ in 0..100 {
+///     o.push(0x4000_0000, &mut out);
+/// }
+/// assert!(out[..8].iter().all(|&v| (v - 0x4000_0000).abs() < 42_950));
+/// assert_eq!(o.delay_updates(), 305);
+/// ```
 #[derive(Clone, Debug)]
 pub struct Oversampler {
     ratio: usize,
-    stages: u8,
+    /// `THROUGH`, 1 to 4 half-band stages, `SIX` or `TWELVE`.
+    plan: u8,
     /// Stage 1 delay line, written twice (at `pos` and `pos + W1`) so that
     /// the newest `W1` inputs are always contiguous.
     ring: [i32; 2 * W1],
@@ -285,6 +436,10 @@ pub struct Oversampler {
     pos3: usize,
     ring4: [i32; 2 * S4],
     pos4: usize,
+    /// Third-band stage (ratios 6 and 12); at 12x the half-band after it
+    /// uses `ring2`.
+    ring_t: [i32; 2 * ST],
+    pos_t: usize,
     clamped: u32,
 }
 
@@ -294,17 +449,19 @@ impl Oversampler {
     /// # Errors
     /// [`ConfigError::OversamplingRatio`] unless `ratio` is 1, 2, 4, 8 or 16.
     pub fn try_new(ratio: u32) -> Result<Self, ConfigError> {
-        let stages = match ratio {
-            1 => 0,
+        let plan = match ratio {
+            1 => THROUGH,
             2 => 1,
             4 => 2,
             8 => 3,
             16 => 4,
+            6 => SIX,
+            12 => TWELVE,
             _ => return Err(ConfigError::OversamplingRatio { ratio }),
         };
         Ok(Self {
             ratio: ratio as usize,
-            stages,
+            plan,
             ring: [0; 2 * W1],
             pos: 0,
             ring2: [0; 2 * S2],
@@ -313,6 +470,8 @@ impl Oversampler {
             pos3: 0,
             ring4: [0; 2 * S4],
             pos4: 0,
+            ring_t: [0; 2 * ST],
+            pos_t: 0,
             clamped: 0,
         })
     }
@@ -323,30 +482,51 @@ impl Oversampler {
     }
 
     /// Group delay at the update rate, in updates: input sample `m` is
-    /// centred on output `m x ratio + delay_updates()`. Stage `k` of `n`
-    /// adds `(2 K_k - 1) x 2^(n-k)`: 615 at 16x, 305 at 8x, 149 at 4x, 69
-    /// at 2x.
+    /// centred on output `m x ratio + delay_updates()`. Each stage
+    /// multiplies the delay so far by its factor and adds its own: `2K - 1`
+    /// for a half-band, `3P - 1` for the third band. 69 at 2x, 149 at 4x,
+    /// 227 at 6x, 305 at 8x, 461 at 12x, 615 at 16x.
     pub const fn delay_updates(&self) -> u32 {
-        let mut d = 0u32;
-        let mut k = 0;
-        while k < self.stages as usize {
-            d = d * 2 + (2 * STAGE_PAIRS[k] as u32 - 1);
-            k += 1;
+        const fn half(d: u32, k: usize) -> u32 {
+            d * 2 + (2 * STAGE_PAIRS[k] as u32 - 1)
         }
-        d
+        const fn third(d: u32) -> u32 {
+            d * 3 + (3 * P3 as u32 - 1)
+        }
+        match self.plan {
+            SIX => third(half(0, 0)),
+            TWELVE => half(third(half(0, 0)), 2),
+            n => {
+                let mut d = 0u32;
+                let mut k = 0;
+                while k < n as usize {
+                    d = half(d, k);
+                    k += 1;
+                }
+                d
+            }
+        }
     }
 
-    /// Multiply-accumulates per input sample (one per coefficient pair and
-    /// computed output); divide by [`Oversampler::ratio`] for the count per
-    /// update.
+    /// Multiply-accumulates per input sample (one per coefficient pair,
+    /// or per sum or difference pair of the third band, and computed
+    /// output); divide by [`Oversampler::ratio`] for the count per update.
+    /// 35 at 2x, 47 at 4x, 63 at 6x, 63 at 8x, 87 at 12x, 87 at 16x.
     pub const fn macs_per_input(&self) -> u32 {
-        let mut m = 0u32;
-        let mut k = 0;
-        while k < self.stages as usize {
-            m += (STAGE_PAIRS[k] as u32) << k;
-            k += 1;
+        let third = (2 * P3 * NT) as u32;
+        match self.plan {
+            SIX => K1 as u32 + third,
+            TWELVE => K1 as u32 + third + (K3 * NB) as u32,
+            n => {
+                let mut m = 0u32;
+                let mut k = 0;
+                while k < n as usize {
+                    m += (STAGE_PAIRS[k] as u32) << k;
+                    k += 1;
+                }
+                m
+            }
         }
-        m
     }
 
     /// Input samples whose interpolation was saturated to full scale, since
@@ -370,6 +550,8 @@ impl Oversampler {
         self.pos3 = 0;
         self.ring4 = [0; 2 * S4];
         self.pos4 = 0;
+        self.ring_t = [0; 2 * ST];
+        self.pos_t = 0;
     }
 
     /// Block form of [`Oversampler::push`]: interpolates
@@ -393,26 +575,60 @@ impl Oversampler {
     /// the front of `out`.
     #[inline]
     pub fn push(&mut self, x: i32, out: &mut [i32; MAX_RATIO]) {
-        if self.stages == 0 {
+        if self.plan == THROUGH {
             out[0] = x;
             return;
         }
         let mut flags = 0u32;
-        let stages = self.stages;
+        let plan = self.plan;
         let (ring, pos) = (&mut self.ring, &mut self.pos);
         let (r2, p2) = (&mut self.ring2, &mut self.pos2);
         let (r3, p3) = (&mut self.ring3, &mut self.pos3);
         let (r4, p4) = (&mut self.ring4, &mut self.pos4);
+        let (rt, pt) = (&mut self.ring_t, &mut self.pos_t);
         const L2: usize = W2 - 1 + N2;
         const L3: usize = W3 - 1 + N3;
         const L4: usize = W4 - 1 + N4;
-        if stages == 1 {
+        const LT: usize = W3X - 1 + NT;
+        const LB: usize = W3 - 1 + NB;
+        if plan == 1 {
             if let Some(d) = out.first_chunk_mut::<2>() {
                 run_head::<2>(ring, pos, x, &STAGE1, d, &mut flags);
             }
+        } else if plan >= SIX {
+            if let Some(t) = ring_tail::<ST, NT, { 2 * ST }>(rt, *pt) {
+                run_head::<1>(ring, pos, x, &STAGE1, t, &mut flags);
+                if plan == SIX {
+                    if let Some(d) = out.first_chunk_mut::<6>() {
+                        run_third::<NT, ST, { 2 * ST }, LT, 6, 2>(
+                            rt,
+                            pt,
+                            &THIRD_SUM,
+                            &THIRD_DIFF,
+                            d,
+                            &mut flags,
+                        );
+                    }
+                } else if let (Some(b), Some(d)) = (
+                    ring_tail::<SB, NB, { 2 * S2 }>(r2, *p2),
+                    out.first_chunk_mut::<12>(),
+                ) {
+                    run_third::<NT, ST, { 2 * ST }, LT, 6, 1>(
+                        rt,
+                        pt,
+                        &THIRD_SUM,
+                        &THIRD_DIFF,
+                        b,
+                        &mut flags,
+                    );
+                    run_ring::<K3, W3, NB, SB, { 2 * S2 }, LB, 12, 2>(
+                        r2, p2, &STAGE3, d, &mut flags,
+                    );
+                }
+            }
         } else if let Some(t2) = ring_tail::<S2, N2, { 2 * S2 }>(r2, *p2) {
             run_head::<1>(ring, pos, x, &STAGE1, t2, &mut flags);
-            if stages == 2 {
+            if plan == 2 {
                 if let Some(d) = out.first_chunk_mut::<4>() {
                     run_ring::<K2, W2, N2, S2, { 2 * S2 }, L2, 4, 2>(
                         r2, p2, &STAGE2, d, &mut flags,
@@ -420,7 +636,7 @@ impl Oversampler {
                 }
             } else if let Some(t3) = ring_tail::<S3, N3, { 2 * S3 }>(r3, *p3) {
                 run_ring::<K2, W2, N2, S2, { 2 * S2 }, L2, 4, 1>(r2, p2, &STAGE2, t3, &mut flags);
-                if stages == 3 {
+                if plan == 3 {
                     if let Some(d) = out.first_chunk_mut::<8>() {
                         run_ring::<K3, W3, N3, S3, { 2 * S3 }, L3, 8, 2>(
                             r3, p3, &STAGE3, d, &mut flags,

@@ -29,6 +29,12 @@
 //! input rate. The lowest supported input rate, 44.1 kHz, gives the narrowest
 //! transition bands when expressed as a fraction of the rate, so the filters
 //! are designed for it and serve every higher input rate with more margin.
+//!
+//! The interpolator by 3 of ratios 6 and 12 runs at twice the input rate,
+//! after the first half-band: it keeps 0 to 20 kHz and removes the images
+//! about 2 fs and 4 fs, a wide transition that a short Kaiser-windowed sinc
+//! meets (41 taps, [`kaiser_third_band`]); its taps at the multiples of 3 are
+//! zero, so one output in three is a plain copy.
 
 use std::vec::Vec;
 
@@ -242,6 +248,87 @@ pub fn design_stage_q31(stage: usize) -> Option<Vec<i32>> {
     d.converged.then(|| quantise_q31(&d.coeffs))
 }
 
+/// Kaiser window shape parameter of the third-band stage: the best image
+/// rejection for its 41 taps (about -117 dB; 11 and 13 give about -108 and
+/// -89 dB).
+pub const THIRD_BETA: f64 = 12.0;
+
+/// Zeroth-order modified Bessel function of the first kind, by its power
+/// series `sum ((x/2)^k / k!)^2` (Abramowitz & Stegun 9.6.12), summed until
+/// the terms no longer change the sum.
+pub fn bessel_i0(x: f64) -> f64 {
+    let (mut sum, mut term) = (1.0, 1.0);
+    let q = x * x / 4.0;
+    for k in 1..500 {
+        term *= q / (k * k) as f64;
+        sum += term;
+        if term < sum * 1e-17 {
+            break;
+        }
+    }
+    sum
+}
+
+/// Branch-1 taps `d[i] = h[3(i - P) + 1]`, `i = 0..2P`, of a Kaiser-windowed
+/// sinc interpolator by 3 with `6P - 1` taps and gain 3:
+/// `h[n] = sinc(n/3) I0(beta sqrt(1 - (n/3P)^2)) / I0(beta)`, which is 1 at
+/// `n = 0` and 0 at the other multiples of 3 (a third-band or Nyquist(3)
+/// filter: one output in three is a copy of the input). The window method
+/// after J. F. Kaiser, Proc. IEEE ISCAS 1974 [memory].
+pub fn kaiser_third_band(p: usize, beta: f64) -> Vec<f64> {
+    let half = 3.0 * p as f64;
+    (0..2 * p)
+        .map(|i| {
+            let n = 3.0 * (i as f64 - p as f64) + 1.0;
+            let x = core::f64::consts::PI * n / 3.0;
+            let sinc = x.sin() / x;
+            let r = n / half;
+            sinc * bessel_i0(beta * (1.0 - r * r).sqrt()) / bessel_i0(beta)
+        })
+        .collect()
+}
+
+/// The firmware's third-band tables from branch-1 taps `d` (length `2P`):
+/// `((d[i] + d[2P-1-i]) / 2, (d[i] - d[2P-1-i]) / 2)` for `i < P`,
+/// quantised to Q1.31.
+pub fn third_band_q31(d: &[f64]) -> (Vec<i32>, Vec<i32>) {
+    let p = d.len() / 2;
+    let sum: Vec<f64> = (0..p).map(|i| (d[i] + d[2 * p - 1 - i]) / 2.0).collect();
+    let diff: Vec<f64> = (0..p).map(|i| (d[i] - d[2 * p - 1 - i]) / 2.0).collect();
+    (quantise_q31(&sum), quantise_q31(&diff))
+}
+
+/// The third-band stage's design, quantised as the firmware stores it.
+pub fn design_third_q31() -> (Vec<i32>, Vec<i32>) {
+    third_band_q31(&kaiser_third_band(
+        crate::oversample::THIRD_SUM.len(),
+        THIRD_BETA,
+    ))
+}
+
+/// Amplitude response of the third-band stage with tables `sum`, `diff`
+/// (Q1.31), at `f` as a fraction of its output rate, scaled to 1 in the
+/// passband: `(1 + 2 sum_k b[k] cos(2 pi f (3k + 1))) / 3` with the
+/// branch-1 taps `b` rebuilt exactly as the firmware applies them.
+pub fn third_band_gain_q31(sum: &[i32], diff: &[i32], f: f64) -> f64 {
+    let p = sum.len();
+    let mut d = vec![0i64; 2 * p];
+    for i in 0..p {
+        d[i] = sum[i] as i64 + diff[i] as i64;
+        d[2 * p - 1 - i] = sum[i] as i64 - diff[i] as i64;
+    }
+    let w = 2.0 * core::f64::consts::PI * f;
+    let s: f64 = d
+        .iter()
+        .enumerate()
+        .map(|(i, &di)| {
+            let n = 3.0 * (i as f64 - p as f64) + 1.0;
+            di as f64 / 2_147_483_648.0 * (w * n).cos()
+        })
+        .sum();
+    (1.0 + 2.0 * s) / 3.0
+}
+
 /// Amplitude response of a half-band stage with Q1.31 coefficients `c`, at
 /// `f` as a fraction of the stage's output rate, scaled so that the ideal
 /// passband gain is 1 (signed: negative values are phase reversals).
@@ -255,25 +342,29 @@ pub fn half_band_gain_q31(c: &[i32], f: f64) -> f64 {
     0.5 + s
 }
 
-/// Magnitude response of the firmware's cascade for `ratio` (1, 2, 4, 8 or
-/// 16), computed from its integer coefficient tables, at `f` as a fraction
-/// of the *input* rate, scaled so that the ideal passband gain is 1. `None`
-/// for an unsupported ratio.
+/// Magnitude response of the firmware's cascade for `ratio` (1, 2, 4, 6,
+/// 8, 12 or 16), computed from its integer coefficient tables, at `f` as a
+/// fraction of the *input* rate, scaled so that the ideal passband gain is
+/// 1. `None` for an unsupported ratio.
 pub fn cascade_gain(ratio: u32, f: f64) -> Option<f64> {
-    let stages = match ratio {
-        1 => 0,
-        2 => 1,
-        4 => 2,
-        8 => 3,
-        16 => 4,
-        _ => return None,
+    let t = crate::oversample::stage_tables();
+    let third = |rate: f64| {
+        third_band_gain_q31(
+            &crate::oversample::THIRD_SUM,
+            &crate::oversample::THIRD_DIFF,
+            f / rate,
+        )
+        .abs()
     };
-    let tables = crate::oversample::stage_tables();
-    Some(
-        tables[..stages]
-            .iter()
-            .enumerate()
-            .map(|(i, c)| half_band_gain_q31(c, f / (2u32 << i) as f64).abs())
-            .product(),
-    )
+    let half = |k: usize, rate: f64| half_band_gain_q31(t[k], f / rate).abs();
+    Some(match ratio {
+        1 => 1.0,
+        2 => half(0, 2.0),
+        4 => half(0, 2.0) * half(1, 4.0),
+        8 => half(0, 2.0) * half(1, 4.0) * half(2, 8.0),
+        16 => half(0, 2.0) * half(1, 4.0) * half(2, 8.0) * half(3, 16.0),
+        6 => half(0, 2.0) * third(6.0),
+        12 => half(0, 2.0) * third(6.0) * half(2, 12.0),
+        _ => return None,
+    })
 }

@@ -4,13 +4,16 @@
 //! arithmetic.
 
 use rustfft::{num_complex::Complex, FftPlanner};
-use ticktone::oversample::{stage_tables, Oversampler, MAX_RATIO, STAGE_PAIRS};
+use ticktone::oversample::{
+    stage_tables, Oversampler, MAX_RATIO, STAGE_PAIRS, THIRD_DIFF, THIRD_SUM,
+};
 use ticktone::oversample_design::{
-    cascade_gain, design_stage_q31, half_band_gain_q31, remez_half_band, stage_specs, BAND_EDGE_HZ,
+    bessel_i0, cascade_gain, design_stage_q31, design_third_q31, half_band_gain_q31,
+    kaiser_third_band, remez_half_band, stage_specs, third_band_gain_q31, BAND_EDGE_HZ, THIRD_BETA,
 };
 use ticktone::ConfigError;
 
-const RATIOS: [u32; 4] = [2, 4, 8, 16];
+const RATIOS: [u32; 6] = [2, 4, 6, 8, 12, 16];
 const Q31: f64 = 2_147_483_648.0;
 
 fn db(x: f64) -> f64 {
@@ -28,27 +31,80 @@ fn run(o: &mut Oversampler, input: &[i32]) -> Vec<i32> {
     out
 }
 
-/// Full tap array (length 4K - 1) of a gain-2 half-band interpolator.
-fn taps(c: &[i32]) -> Vec<f64> {
-    let k = c.len();
-    let mut g = vec![0.0; 4 * k - 1];
-    g[2 * k - 1] = 1.0;
-    for (j, &cj) in c.iter().enumerate() {
-        g[2 * k - 2 - 2 * j] = cj as f64 / Q31;
-        g[2 * k + 2 * j] = cj as f64 / Q31;
-    }
-    g
+/// One stage of a cascade, for the test models.
+#[derive(Clone, Copy)]
+enum Stage {
+    /// Half-band by 2 with these Q1.31 pair coefficients.
+    Half(&'static [i32]),
+    /// The third-band stage by 3.
+    Third,
 }
 
-/// Straightforward f64 model of the cascade: per stage, insert a zero after
+/// The stages the firmware documents for each ratio.
+fn plan(ratio: u32) -> Vec<Stage> {
+    let t = stage_tables();
+    match ratio {
+        6 => vec![Stage::Half(t[0]), Stage::Third],
+        12 => vec![Stage::Half(t[0]), Stage::Third, Stage::Half(t[2])],
+        r => t[..r.trailing_zeros() as usize]
+            .iter()
+            .map(|&c| Stage::Half(c))
+            .collect(),
+    }
+}
+
+/// Branch-1 taps of the third band, rebuilt from the sum/difference tables.
+fn third_branch() -> Vec<i64> {
+    let p = THIRD_SUM.len();
+    let mut d = vec![0i64; 2 * p];
+    for i in 0..p {
+        d[i] = THIRD_SUM[i] as i64 + THIRD_DIFF[i] as i64;
+        d[2 * p - 1 - i] = THIRD_SUM[i] as i64 - THIRD_DIFF[i] as i64;
+    }
+    d
+}
+
+/// Full causal tap array of a stage (interpolation gain included) and its
+/// factor.
+fn taps(stage: Stage) -> (usize, Vec<f64>) {
+    match stage {
+        Stage::Half(c) => {
+            let k = c.len();
+            let mut g = vec![0.0; 4 * k - 1];
+            g[2 * k - 1] = 1.0;
+            for (j, &cj) in c.iter().enumerate() {
+                g[2 * k - 2 - 2 * j] = cj as f64 / Q31;
+                g[2 * k + 2 * j] = cj as f64 / Q31;
+            }
+            (2, g)
+        }
+        Stage::Third => {
+            // Taps n = -(3P-1) ..= 3P-1: h[0] = 1, h[3k+1] = b[k],
+            // h[3k+2] = b[-k-1] (symmetry), b[k] = d[k + P].
+            let d = third_branch();
+            let p = d.len() / 2;
+            let c = 3 * p - 1;
+            let mut g = vec![0.0; 2 * c + 1];
+            g[c] = 1.0;
+            for (i, &di) in d.iter().enumerate() {
+                let n = 3 * (i as isize - p as isize) + 1;
+                g[(c as isize + n) as usize] = di as f64 / Q31;
+                g[(c as isize - n) as usize] = di as f64 / Q31;
+            }
+            (3, g)
+        }
+    }
+}
+
+/// Straightforward f64 model of the cascade: per stage, insert zeros after
 /// every sample and convolve with the full causal tap array.
 fn reference(ratio: u32, x: &[f64]) -> Vec<f64> {
     let mut s = x.to_vec();
-    for c in &stage_tables()[..ratio.trailing_zeros() as usize] {
-        let g = taps(c);
-        let mut u = vec![0.0; 2 * s.len()];
+    for stage in plan(ratio) {
+        let (l, g) = taps(stage);
+        let mut u = vec![0.0; l * s.len()];
         for (i, &v) in s.iter().enumerate() {
-            u[2 * i] = v;
+            u[l * i] = v;
         }
         s = (0..u.len())
             .map(|t| (0..g.len().min(t + 1)).map(|i| g[i] * u[t - i]).sum())
@@ -73,6 +129,35 @@ fn committed_tables_are_the_design() {
         assert_eq!(&design[..], *table, "stage {}", k + 1);
         assert_eq!(table.len(), STAGE_PAIRS[k]);
     }
+    let (sum, diff) = design_third_q31();
+    assert_eq!(sum, THIRD_SUM);
+    assert_eq!(diff, THIRD_DIFF);
+}
+
+#[test]
+fn third_band_design_checks() {
+    // I0 against its tabulated values (Abramowitz & Stegun table 9.8 gives
+    // e^-x I0(x); I0(1) = 1.266065878, I0(5) = 27.23987182 [memory]).
+    assert!((bessel_i0(0.0) - 1.0).abs() < 1e-15);
+    assert!((bessel_i0(1.0) - 1.266_065_878).abs() < 1e-8);
+    assert!((bessel_i0(5.0) - 27.239_871_82).abs() < 1e-6);
+    // A Nyquist(3) filter: the taps at multiples of 3 are zero by
+    // construction, so the three polyphase branches sum to a flat response:
+    // H(f) + H(f + 1/3) + H(f + 2/3) = 1 [derived from the definition].
+    for i in 0..40 {
+        let f = i as f64 / 80.0;
+        let s: f64 = (0..3)
+            .map(|m| third_band_gain_q31(&THIRD_SUM, &THIRD_DIFF, f + m as f64 / 3.0))
+            .sum();
+        assert!((s - 1.0).abs() < 1e-8, "{s}");
+    }
+    // The window's sinc: d[P] is the tap at n = 1, sinc(1/3) w(1).
+    let d = kaiser_third_band(THIRD_SUM.len(), THIRD_BETA);
+    let p = THIRD_SUM.len();
+    let x = std::f64::consts::PI / 3.0;
+    let r = 1.0 / (3 * p) as f64;
+    let w = bessel_i0(THIRD_BETA * (1.0 - r * r).sqrt()) / bessel_i0(THIRD_BETA);
+    assert!((d[p] - x.sin() / x * w).abs() < 1e-15);
 }
 
 #[test]
@@ -246,7 +331,7 @@ fn sines_level_images_and_integer_snr() {
         (44_100.0, 92),
         (44_100.0, 1857),
     ] {
-        for ratio in [8u32, 16] {
+        for ratio in [6u32, 8, 12, 16] {
             let r = ratio as usize;
             let mut o = Oversampler::try_new(ratio).unwrap();
             // Past the start-up transient: the whole impulse response (2D + 1).
@@ -304,40 +389,56 @@ fn sines_level_images_and_integer_snr() {
 }
 
 /// The documented integer arithmetic, written out directly: Q2.30 delay
-/// lines, pre-added pairs, exact i64 sum, high word (floor), saturation
-/// to [-2^29, 2^29 - 1], scaling by 2 (next stage) or 4 (output).
+/// lines, pre-added pairs, exact i64 sums, high word (floor), saturation
+/// to [-2^29, 2^29 - 1], scaling by 2 (next stage) or 4 (output). The third
+/// band is written here in its plain form, each branch its own dot product
+/// over the rebuilt taps, which must give the same sums as the firmware's
+/// sum/difference form.
 fn integer_model(ratio: u32, x: &[i32]) -> (Vec<i32>, u32) {
-    let stages = ratio.trailing_zeros() as usize;
+    let stages = plan(ratio);
     let mut s: Vec<i32> = x.iter().map(|&v| v >> 1).collect();
     let mut sat = vec![false; x.len()];
-    let mut out = Vec::new();
-    for (n, c) in stage_tables()[..stages].iter().enumerate() {
-        let k = c.len();
-        let last = n + 1 == stages;
-        let at = |i: isize| if i < 0 { 0 } else { s[i as usize] };
-        let mut next = Vec::with_capacity(2 * s.len());
-        for i in 0..s.len() as isize {
-            // Window: s[i - 2K + 1 ..= i].
-            let w = |j: usize| at(i - 2 * k as isize + 1 + j as isize);
-            let mut acc: i64 = 0;
-            for j in 0..k {
-                acc += (w(k - 1 - j) as i64 + w(k + j) as i64) * c[j] as i64;
-            }
-            let hi = (acc >> 32) as i32;
+    let mut per_push = 1usize; // stage inputs per input sample
+    for (n, &stage) in stages.iter().enumerate() {
+        let last = n + 1 == stages.len();
+        let sh = if last { 2 } else { 1 };
+        let clamp = |hi: i32, flag: &mut bool| {
             let cl = hi.clamp(-(1 << 29), (1 << 29) - 1);
-            let src = (i as usize) >> n;
-            sat[src] |= cl != hi;
-            let sh = if last { 2 } else { 1 };
-            next.push(cl << sh);
-            next.push(w(k) << (sh - 1));
+            *flag |= cl != hi;
+            cl << sh
+        };
+        let at = |i: isize| if i < 0 { 0 } else { s[i as usize] };
+        let mut next = Vec::new();
+        for i in 0..s.len() as isize {
+            let src = i as usize / per_push;
+            match stage {
+                Stage::Half(c) => {
+                    let k = c.len();
+                    let w = |j: usize| at(i - 2 * k as isize + 1 + j as isize);
+                    let mut acc: i64 = 0;
+                    for j in 0..k {
+                        acc += (w(k - 1 - j) as i64 + w(k + j) as i64) * c[j] as i64;
+                    }
+                    next.push(clamp((acc >> 32) as i32, &mut sat[src]));
+                    next.push(w(k) << (sh - 1));
+                }
+                Stage::Third => {
+                    let d = third_branch();
+                    let p = d.len() / 2;
+                    let w = |j: usize| at(i - 2 * p as isize + 1 + j as isize) as i64;
+                    // Branch 1 takes w reversed, branch 2 w in order.
+                    let y1: i64 = (0..2 * p).map(|j| d[j] * w(2 * p - 1 - j)).sum();
+                    let y2: i64 = (0..2 * p).map(|j| d[j] * w(j)).sum();
+                    next.push(clamp((y1 >> 32) as i32, &mut sat[src]));
+                    next.push(clamp((y2 >> 32) as i32, &mut sat[src]));
+                    next.push((w(p) as i32) << (sh - 1));
+                }
+            }
         }
-        if last {
-            out = next;
-        } else {
-            s = next;
-        }
+        per_push *= next.len() / s.len();
+        s = next;
     }
-    (out, sat.iter().filter(|&&b| b).count() as u32)
+    (s, sat.iter().filter(|&&b| b).count() as u32)
 }
 
 #[test]
@@ -400,14 +501,14 @@ fn full_scale_overshoot_saturates_without_wrapping() {
 
 #[test]
 fn ratios_and_errors() {
-    for r in [1u32, 2, 4, 8, 16] {
+    for r in [1u32, 2, 4, 6, 8, 12, 16] {
         let o = Oversampler::try_new(r).unwrap();
         assert_eq!(o.ratio(), r as usize);
     }
-    for r in [0u32, 3, 5, 6, 12, 17, 32] {
+    for r in [0u32, 3, 5, 7, 9, 10, 14, 17, 32] {
         let e = Oversampler::try_new(r).unwrap_err();
         assert_eq!(e, ConfigError::OversamplingRatio { ratio: r });
-        assert!(e.to_string().contains("1, 2, 4, 8 or 16"), "{e}");
+        assert!(e.to_string().contains("1, 2, 4, 6, 8, 12 or 16"), "{e}");
     }
     // Ratio 1 passes the input through, with no delay.
     let mut o = Oversampler::try_new(1).unwrap();
