@@ -16,8 +16,12 @@
 //! quadratic or cubic Lagrange) and the meeting point solved by
 //! Newton-Raphson steps ([`crate::crossing`] has the arithmetic). Sample
 //! `k` is the signal at the start of update slot `k`, as the oversampler
-//! delivers it; the solver waits for the later samples the polynomial needs
-//! and so delays the signal by [`EdgeSolver::delay_updates`] updates:
+//! delivers it. Its linear-phase filters put every output on one uniform
+//! grid behind the input by a constant delay, and a constant delay of the
+//! signal against the carrier changes nothing in natural sampling: only the
+//! uniform spacing matters. The solver waits for the later samples the
+//! polynomial needs and so delays the signal by
+//! [`EdgeSolver::delay_updates`] updates:
 //!
 //! | timer | slot's carrier | nodes of order 1 / 2 / 3 | delay |
 //! |---|---|---|---|
