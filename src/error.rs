@@ -129,6 +129,15 @@ pub enum ConfigError {
         /// Highest number supported.
         max: u8,
     },
+    /// The noise shaper's pole set would overflow its fixed-point state (the
+    /// poles sit too close to the unit circle for this order); choose a
+    /// larger sum |h| budget or no poles.
+    ShaperState {
+        /// In-band order asked for.
+        order: u8,
+        /// Zeros at half the update rate asked for.
+        half_rate_zeros: u8,
+    },
     /// The update rate is not above twice the 20 kHz band the noise shaper
     /// works for.
     ShaperBand {
@@ -219,6 +228,11 @@ impl fmt::Display for ConfigError {
             ShaperHalfRateZeros { zeros, max } => write!(
                 f,
                 "noise shaper: {zeros} zeros at half the update rate is above the highest supported, {max}"
+            ),
+            ShaperState { order, half_rate_zeros } => write!(
+                f,
+                "noise shaper order {order} with {half_rate_zeros} half-rate zeros: this pole set would overflow the \
+                 fixed-point filter state; choose a larger sum |h| budget or no poles"
             ),
             ShaperBand { update_hz } => write!(
                 f,

@@ -160,7 +160,13 @@ impl<const CH: usize> Modulator<CH> {
             timer,
             bridge,
             ratio: ratio as usize,
-            channels: core::array::from_fn(|_| channel.clone()),
+            // Each channel its own dither sequence: correlated dither between
+            // channels would add coherently in a phantom centre image.
+            channels: core::array::from_fn(|i| {
+                let mut c = channel.clone();
+                c.quant.reseed(i as u32);
+                c
+            }),
             input_clamped: 0,
         })
     }

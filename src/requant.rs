@@ -154,8 +154,8 @@ impl Requantiser {
     /// # Errors
     /// [`ConfigError::NoUsableDuty`] if `low > high`; the NTF design errors
     /// of [`Ntf::design`]; [`ConfigError::ShaperHeadroom`] when the headroom
-    /// (plus dither) leaves no input range, or the filter state could
-    /// overflow its format.
+    /// (plus dither) leaves no input range; [`ConfigError::ShaperState`] when
+    /// the filter state could overflow its format.
     pub fn try_new(
         timer: &Timer,
         low: u32,
@@ -194,9 +194,9 @@ impl Requantiser {
             .map(|&c| (c as f64).abs())
             .sum();
         if !(s_max < (1u64 << 30) as f64 && coef_sum * s_max < (1u64 << 61) as f64) {
-            return Err(ConfigError::ShaperHeadroom {
-                needs: u32::MAX,
-                available,
+            return Err(ConfigError::ShaperState {
+                order: shaper.order,
+                half_rate_zeros: shaper.half_rate_zeros,
             });
         }
         Ok(Self {
