@@ -126,7 +126,8 @@ fn model(x: f32, top: u32, low: u32, high: u32) -> (u32, bool, bool, bool) {
     };
     let y = (q + 1.0) / 2.0 * top as f64;
     let y = (y * 65536.0).floor() / 65536.0; // 16 fraction bits, truncated
-    let lowc = y < low as f64;
+    // Nearest tick, halves up: anything from low - 1/2 rounds to >= low.
+    let lowc = y < low as f64 - 0.5;
     let highc = y >= high as f64 + 0.5;
     let c = ((y + 0.5).floor() as u32).clamp(low, high);
     (c, bad, lowc, highc)
