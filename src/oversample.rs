@@ -66,8 +66,9 @@
 //!   `[-1, 1 - 2^-29]` before it goes on (an interpolator can overshoot a
 //!   full-scale input). Input samples whose interpolation saturated are
 //!   counted ([`Oversampler::clamped`]). No stage can overflow before that
-//!   point: every table's sum of `|c|` is below 1.5, checked at compile
-//!   time, so `|acc| < 1.5 x 2^62` and the high word fits in `i32`.
+//!   point: every half-band table's sum of `|c|` is below 1.5 and the
+//!   third band's sum and difference tables together below 1.75, checked at
+//!   compile time, so `|acc| < 1.75 x 2^62` and the high word fits in `i32`.
 //! - Output Q1.31; computed samples have their two lowest bits zero.
 //!
 //! No floating point, no allocation, no panic path: windows are fixed-size
