@@ -6,6 +6,9 @@
 //! metrics. `rebuild_and_analyse`: compare words -> switch waveforms ->
 //! bridge output -> the same. Run: `cargo bench --bench lab`.
 
+// `criterion_group!` defines an undocumented function.
+#![allow(missing_docs)]
+
 use criterion::{criterion_group, criterion_main, Criterion};
 use ticktone::lab::exact::ExactSampling;
 use ticktone::lab::metrics::analyse;

@@ -50,6 +50,10 @@ fn three_level_carrier_bands() {
     assert!(diff(cyc_c) < 1e-9, "at f_c: {}", diff(cyc_c));
     for side in [-1.0, 1.0] {
         let got = diff(2.0 * cyc_c + side * cyc_o);
+        eprintln!(
+            "3-level 2fc{side:+}fo: {got:.6} (0.72170), at fc {:.2e}",
+            diff(cyc_c)
+        );
         assert!(db(got / 0.72170).abs() < 0.1, "2fc{side:+}fo: {got}");
         assert!(
             db(got / expect).abs() < 1e-3,
@@ -64,6 +68,7 @@ fn three_level_carrier_bands() {
     assert!(db(at_fc) < -120.0, "wideband at f_c: {:.1} dB", db(at_fc));
     for f in [2.0 * fc - 1e3, 2.0 * fc + 1e3] {
         let got = 2.0 * w.amp[k(f)].norm();
+        eprintln!("wideband {f} Hz: {got:.6}; at f_c {:.1} dB", db(at_fc));
         assert!(db(got / 0.72170).abs() < 0.1, "wideband at {f}: {got}");
     }
     // The baseband stays the input: M at f_o.

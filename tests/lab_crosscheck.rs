@@ -133,7 +133,7 @@ fn firmware_path_bins_agree_with_a_plain_fft() {
         // Window in frequency: sum_j (-1)^j (a_j / 2) (X[k - j] + X[k + j]).
         let mut v = plain[k] * BH7[0];
         for (j, a) in BH7.iter().enumerate().skip(1) {
-            let s = if j % 2 == 0 { 0.5 } else { -0.5 } * a;
+            let s = if j.is_multiple_of(2) { 0.5 } else { -0.5 } * a;
             v += (plain[k - j] + plain[k + j]) * s;
         }
         let v = v / BH7[0];

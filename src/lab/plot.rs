@@ -96,7 +96,7 @@ pub fn write_svg(
         (
             &bottom,
             band,
-            bandwidth_hz * 1.2,
+            bandwidth_hz,
             1e3,
             "frequency (kHz)",
             format!(

@@ -44,8 +44,23 @@ pub const MAX_ORDER: usize = 8;
 
 /// Values `M_{k}(phi + l)`, `l = 0..k`, of the cardinal B-spline of order
 /// `k` (degree `k - 1`, support `[0, k]`) for `phi` in `[0, 1]`, written to
-/// the front of `out`.
+/// the front of `out`: the Cox-de Boor recurrence, with the order-6 case
+/// (the in-band grid's `K = 5`) written out as its six quintic pieces.
 pub fn bspline_values(phi: f64, k: usize, out: &mut [f64]) {
+    if k == 6 {
+        let t = phi;
+        let u = 1.0 - t;
+        let (t2, t3) = (t * t, t * t * t);
+        let (t4, t5) = (t2 * t2, t2 * t3);
+        const S: f64 = 1.0 / 120.0;
+        out[0] = t5 * S;
+        out[1] = (1.0 + 5.0 * t + 10.0 * t2 + 10.0 * t3 + 5.0 * t4 - 5.0 * t5) * S;
+        out[2] = (26.0 + 50.0 * t + 20.0 * t2 - 20.0 * t3 - 20.0 * t4 + 10.0 * t5) * S;
+        out[3] = (66.0 - 60.0 * t2 + 30.0 * t4 - 10.0 * t5) * S;
+        out[4] = (26.0 - 50.0 * t + 20.0 * t2 + 20.0 * t3 - 20.0 * t4 + 5.0 * t5) * S;
+        out[5] = u * u * u * u * u * S;
+        return;
+    }
     out[0] = 1.0;
     for order in 2..=k {
         let inv = 1.0 / (order - 1) as f64;
@@ -91,7 +106,8 @@ pub fn project(w: &Wave, h: f64, n_points: usize, order: usize) -> Vec<f64> {
         // Tail sums from l = order down: partial for j is sum_{l > j}.
         for j in (0..order).rev() {
             tail += vals[j + 1];
-            let idx = (m - j as i64).rem_euclid(n) as usize;
+            let i = m - j as i64;
+            let idx = if i < 0 { i + n } else { i } as usize;
             y[idx] += d * tail;
         }
     };
@@ -181,9 +197,7 @@ pub fn spectrum(w: &Wave, tick_hz: f64, period_ticks: f64, grid: Grid, max_hz: f
         w.end
     );
     let mut y = project(w, h, n, grid.order);
-    for (v, win) in y.iter_mut().zip(window::window(n)) {
-        *v *= win;
-    }
+    window::apply(&mut y);
     let record_s = w.end / tick_hz;
     let bin_hz = 1.0 / record_s;
     let kmax = ((max_hz / bin_hz).ceil() as usize).min(n / 2);
@@ -225,7 +239,7 @@ pub fn spectrum(w: &Wave, tick_hz: f64, period_ticks: f64, grid: Grid, max_hz: f
 fn real_fft(y: &[f64], kmax: usize) -> Vec<Complex64> {
     let n = y.len();
     let mut planner = FftPlanner::<f64>::new();
-    if n % 2 == 1 {
+    if !n.is_multiple_of(2) {
         let mut buf: Vec<Complex64> = y.iter().map(|&v| Complex64::new(v, 0.0)).collect();
         planner.plan_fft_forward(n).process(&mut buf);
         buf.truncate(kmax + 1);

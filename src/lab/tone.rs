@@ -88,7 +88,7 @@ pub fn plan(
     };
     let periods = (((record_s * fc) / align as f64).round() as u64).max(1) * align;
     let record_s = periods as f64 / fc;
-    let input_samples = if ratio == 0 { 0 } else { periods * upp / ratio };
+    let input_samples = (periods * upp).checked_div(ratio).unwrap_or(0);
     let mut cycles = (tone_hz * record_s).round().max(1.0) as u64;
     if input_samples > 0 {
         let base = cycles;

@@ -43,12 +43,36 @@ pub fn window(n: usize) -> Vec<f64> {
             BH7.iter()
                 .enumerate()
                 .map(|(j, a)| {
-                    let s = if j % 2 == 0 { 1.0 } else { -1.0 };
+                    let s = if j.is_multiple_of(2) { 1.0 } else { -1.0 };
                     s * a * (j as f64 * x).cos()
                 })
                 .sum()
         })
         .collect()
+}
+
+/// Multiply `y` by the window of its length, in place (one cosine a
+/// sample; the higher harmonics by the Chebyshev recurrence
+/// `cos(j x) = 2 cos(x) cos((j-1) x) - cos((j-2) x)`, and the window's
+/// symmetry `w[N - n] = w[n]`).
+pub fn apply(y: &mut [f64]) {
+    let n = y.len();
+    let step = 2.0 * std::f64::consts::PI / n as f64;
+    for i in 0..=n / 2 {
+        let c1 = (step * i as f64).cos();
+        let (mut prev, mut cur) = (1.0, c1);
+        let mut w = BH7[0] - BH7[1] * c1;
+        for (j, a) in BH7.iter().enumerate().skip(2) {
+            let next = 2.0 * c1 * cur - prev;
+            prev = cur;
+            cur = next;
+            w += if j.is_multiple_of(2) { *a } else { -a } * cur;
+        }
+        y[i] *= w;
+        if i != 0 && n - i != i {
+            y[n - i] *= w;
+        }
+    }
 }
 
 /// Coherent gain `sum(w) / N`: exactly `a_0` for the periodic form.
