@@ -280,15 +280,6 @@ impl Requantiser {
     /// `(-1/2, +1/2]` tick unless the shaper overloads.
     #[inline]
     pub fn quantise_traced(&mut self, v: i32) -> (u32, i32) {
-        let v = if v < self.in_low {
-            self.counts.low = self.counts.low.wrapping_add(1);
-            self.in_low
-        } else if v > self.in_high {
-            self.counts.high = self.counts.high.wrapping_add(1);
-            self.in_high
-        } else {
-            v
-        };
         macro_rules! dispatch {
             ($($n:literal)*) => {
                 match (self.ntf.taps(), self.iir) {
@@ -301,16 +292,66 @@ impl Requantiser {
         dispatch!(1 2 3 4 5 6 7 8 9 10)
     }
 
-    /// One update with a filter of `M` taps, with or without poles.
+    /// Requantise a block in place: high counts (Q16 ticks) in, whole ticks
+    /// out (as `i32`, within `[low, high]`). Bit-exact with
+    /// [`Requantiser::quantise`] on each value in turn; the filter is
+    /// chosen once and its state kept in registers for the block.
+    pub fn process(&mut self, block: &mut [i32]) {
+        macro_rules! dispatch {
+            ($($n:literal)*) => {
+                match (self.ntf.taps(), self.iir) {
+                    $(($n, false) => self.run::<$n, false>(block),
+                      ($n, true) => self.run::<$n, true>(block),)*
+                    _ => self.run::<0, false>(block),
+                }
+            };
+        }
+        dispatch!(1 2 3 4 5 6 7 8 9 10)
+    }
+
+    /// The input clamp, counted.
     #[inline(always)]
-    fn step<const M: usize, const IIR: bool>(&mut self, v: i32) -> (u32, i32) {
+    fn clamp_input(in_low: i32, in_high: i32, v: i32, counts: &mut ClampCounts) -> i32 {
+        if v < in_low {
+            counts.low = counts.low.wrapping_add(1);
+            in_low
+        } else if v > in_high {
+            counts.high = counts.high.wrapping_add(1);
+            in_high
+        } else {
+            v
+        }
+    }
+
+    /// Coefficients and state as `M`-element arrays (no poles: `d` zero).
+    #[inline(always)]
+    fn arrays<const M: usize, const IIR: bool>(&self) -> Coefs<M> {
         const { assert!(M <= MAX_TAPS) };
         let c = self.ntf.feedback_coefs();
         let d = self.ntf.pole_coefs();
+        Coefs {
+            c: core::array::from_fn(|i| c[i]),
+            d: core::array::from_fn(|i| if IIR { d[i] } else { 0 }),
+        }
+    }
+
+    /// One update with a filter of `M` taps, with or without poles: the
+    /// same arithmetic as [`kernel`], reading coefficients and state in
+    /// place (cheaper per call than copying them into registers).
+    #[inline(always)]
+    fn step<const M: usize, const IIR: bool>(&mut self, v: i32) -> (u32, i32) {
+        const { assert!(M <= MAX_TAPS) };
+        let v = Self::clamp_input(self.in_low, self.in_high, v, &mut self.counts);
+        let c = self.ntf.feedback_coefs();
+        let d = self.ntf.pole_coefs();
+        // The state is read once and written back shifted by one (no
+        // overlapping copy, which would become a memmove call).
+        let mut st = [0i32; M];
         let mut acc_c = COEF_HALF;
         let mut acc_d = COEF_HALF;
         for i in 0..M {
-            let s = self.state[i] as i64;
+            st[i] = self.state[i];
+            let s = st[i] as i64;
             acc_c += c[i] as i64 * s;
             if IIR {
                 acc_d += d[i] as i64 * s;
@@ -335,11 +376,84 @@ impl Requantiser {
             } else {
                 e
             };
-            self.state.copy_within(0..M.saturating_sub(1), 1);
             self.state[0] = sn;
+            self.state[1..M].copy_from_slice(&st[..M.saturating_sub(1)]);
         }
         (q as u32, r)
     }
+
+    /// A block with a filter of `M` taps, with or without poles.
+    #[inline(always)]
+    fn run<const M: usize, const IIR: bool>(&mut self, block: &mut [i32]) {
+        let k = self.arrays::<M, IIR>();
+        let mut st: [i32; M] = core::array::from_fn(|i| self.state[i]);
+        let (in_low, in_high) = (self.in_low, self.in_high);
+        let range = (self.q_low, self.q_high);
+        let mut counts = self.counts;
+        let mut prng = self.prng;
+        let dither = self.dither;
+        for h in block.iter_mut() {
+            let v = Self::clamp_input(in_low, in_high, *h, &mut counts);
+            let dith = if dither { prng.next_q16() } else { 0 };
+            *h = kernel::<M, IIR>(&mut st, &k, v, dith, range, &mut counts.overload).0;
+        }
+        self.state[..M].copy_from_slice(&st);
+        self.counts = counts;
+        self.prng = prng;
+    }
+}
+
+/// Filter coefficients of one kernel size.
+struct Coefs<const M: usize> {
+    c: [i32; M],
+    d: [i32; M],
+}
+
+/// The per-update loop shared by [`Requantiser::quantise`] and
+/// [`Requantiser::process`]: feedback, rounding with dither, the guard, and
+/// the state update. Returns the tick and the rounding error (Q16).
+#[inline(always)]
+fn kernel<const M: usize, const IIR: bool>(
+    st: &mut [i32; M],
+    k: &Coefs<M>,
+    v: i32,
+    dith: i32,
+    (q_low, q_high): (i32, i32),
+    overload: &mut u32,
+) -> (i32, i32) {
+    let mut acc_c = COEF_HALF;
+    let mut acc_d = COEF_HALF;
+    for i in 0..M {
+        let s = st[i] as i64;
+        acc_c += k.c[i] as i64 * s;
+        if IIR {
+            acc_d += k.d[i] as i64 * s;
+        }
+    }
+    let u = v + (acc_c >> COEF_FRAC_BITS) as i32;
+    let ud = u + dith;
+    let mut q = (ud + HALF) >> FRAC_BITS;
+    if q < q_low {
+        *overload = overload.wrapping_add(1);
+        q = q_low;
+    } else if q > q_high {
+        *overload = overload.wrapping_add(1);
+        q = q_high;
+    }
+    let r = (q << FRAC_BITS) - ud;
+    if M > 0 {
+        let e = r + dith;
+        let sn = if IIR {
+            e - (acc_d >> COEF_FRAC_BITS) as i32
+        } else {
+            e
+        };
+        for i in (1..M).rev() {
+            st[i] = st[i - 1];
+        }
+        st[0] = sn;
+    }
+    (q, r)
 }
 
 #[cfg(test)]
