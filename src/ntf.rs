@@ -138,7 +138,7 @@ pub struct NtfSpec {
 
 /// Positive roots of the Legendre polynomial `P_L`, `L = 1..=6` (odd `L`
 /// also has the root 0, listed first). Abramowitz & Stegun table 25.4
-/// (Gauss-Legendre abscissae) [memory]; `tests/shaper.rs` re-derives them.
+/// (Gauss-Legendre abscissae) \[memory\]; `tests/shaper.rs` re-derives them.
 pub const LEGENDRE_ROOTS: [&[f64]; MAX_ORDER as usize] = [
     &[0.0],
     &[0.577_350_269_189_625_8],
