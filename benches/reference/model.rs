@@ -12,8 +12,10 @@
 //!   through four neighbouring update-rate samples and Newton-Raphson steps
 //!   on its crossing with the carrier (REFERENCES.md section 3), starting
 //!   from the middle of the slot;
-//! - error-feedback noise shaping `y = v + NTF(z) e` with the NTF's impulse
-//!   response `1, h1, ..., hL`, rounding to the nearest tick, clamps;
+//! - error-feedback noise shaping `q = v + NTF(z) e` with
+//!   `NTF = 1 + C(z)/D(z)` as the crate's requantiser implements it
+//!   (`u = v + sum c_i s[n-i]`, `q = round(u)`, `s[n] = (q - u) - sum d_i
+//!   s[n-i]`), the same coefficients in `f64`, input clamp, rounding;
 //! - bridge words (3-level leg B is `top - c`; separate compares place the
 //!   dead time around the edge).
 //!
@@ -60,8 +62,14 @@ pub struct RefSpec {
     pub sampling: RefSampling,
     /// Two updates a period: the carrier falls in even slots, rises in odd.
     pub alternate: bool,
-    /// NTF impulse response after the leading 1 (empty: plain rounding).
-    pub ntf: Vec<f64>,
+    /// Error-feedback coefficients `c_1..c_L` (empty: plain rounding).
+    pub feedback: Vec<f64>,
+    /// Pole coefficients `d_1..d_L` (zeros for an FIR NTF).
+    pub poles: Vec<f64>,
+    /// Input clamp range of the high count before shaping, ticks.
+    pub in_low: f64,
+    /// See `in_low`.
+    pub in_high: f64,
     /// Clamp range of the rounded high count, ticks.
     pub low: f64,
     /// See `low`.
@@ -119,8 +127,8 @@ struct Channel {
     stages: Vec<HalfBand>,
     /// Last four update-rate samples, oldest first.
     hist: [f64; 4],
-    /// Past rounding errors, newest first.
-    err: Vec<f64>,
+    /// Shaper state, newest first.
+    state: Vec<f64>,
     slot: usize,
 }
 
@@ -155,7 +163,7 @@ impl RefChain {
         let ch = Channel {
             stages: spec.halfbands.iter().map(|c| HalfBand::new(c)).collect(),
             hist: [0.0; 4],
-            err: vec![0.0; spec.ntf.len()],
+            state: vec![0.0; spec.feedback.len()],
             slot: 0,
         };
         Self {
@@ -193,16 +201,19 @@ impl RefChain {
 
     /// Noise-shaped rounding of a high count in ticks.
     fn requantise(spec: &RefSpec, ch: &mut Channel, v: f64) -> f64 {
-        let mut w = v;
-        for (h, e) in spec.ntf.iter().zip(&ch.err) {
-            w += h * e;
+        let v = v.clamp(spec.in_low, spec.in_high);
+        let mut u = v;
+        let mut p = 0.0;
+        for ((c, d), s) in spec.feedback.iter().zip(&spec.poles).zip(&ch.state) {
+            u += c * s;
+            p += d * s;
         }
-        let y = (w + 0.5).floor().clamp(spec.low, spec.high);
-        if !ch.err.is_empty() {
-            ch.err.rotate_right(1);
-            ch.err[0] = y - w;
+        let q = (u + 0.5).floor().clamp(spec.low, spec.high);
+        if !ch.state.is_empty() {
+            ch.state.rotate_right(1);
+            ch.state[0] = (q - u) - p;
         }
-        y
+        q
     }
 
     /// Interleaved input frames (f64 in [-1, 1]) to compare words in the

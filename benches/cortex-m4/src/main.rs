@@ -36,6 +36,7 @@ use panic_semihosting as _;
 
 use ticktone::bridge::Bridge;
 use ticktone::edge::{EdgeSolver, Sampling};
+use ticktone::oversample::{Oversampler, MAX_RATIO};
 use ticktone::requant::{Requantiser, ShaperSpec};
 use ticktone::timer::Timer;
 use ticktone::Modulator;
@@ -96,6 +97,16 @@ fn report(name: &str, net: i64, updates: usize) {
 fn tt_loop_empty(xs: &[i32]) {
     for &x in xs {
         black_box(x);
+    }
+}
+
+#[no_mangle]
+#[inline(never)]
+fn tt_loop_oversample(o: &mut Oversampler, xs: &[i32]) {
+    let mut fine = [0i32; MAX_RATIO];
+    for &x in xs {
+        o.push(x, &mut fine);
+        black_box(&mut fine);
     }
 }
 
@@ -184,6 +195,26 @@ fn stages() {
         *x = sig.frame()[0];
     }
 
+    // 16x oversampler: per update = per input sample / 16.
+    let mut over = Oversampler::try_new(16).unwrap();
+    let ins = &xs[..STAGE_LEN / 16];
+    let reps = TARGET_UPDATES.div_ceil(ins.len() * 16);
+    let empty = instructions(|| {
+        for _ in 0..reps {
+            tt_loop_empty(ins);
+        }
+    });
+    let full = instructions(|| {
+        for _ in 0..reps {
+            tt_loop_oversample(&mut over, ins);
+        }
+    });
+    report(
+        "oversample-x16",
+        full as i64 - empty as i64,
+        reps * ins.len() * 16,
+    );
+
     let mut edge = EdgeSolver::try_new(&timer, Sampling::Uniform).unwrap();
     time_stage("edge-uniform", &xs, |xs| tt_loop_edge(&mut edge, xs));
 
@@ -200,6 +231,11 @@ fn stages() {
     let (low, high) = bridge.high_count_range();
     let mut q = Requantiser::try_new(&timer, low, high, ShaperSpec::ROUND).unwrap();
     time_stage("requant-round", &hs, |vs| tt_loop_requant(&mut q, vs));
+
+    for (name, order) in [("requant-ns3", 3), ("requant-ns5", 5)] {
+        let mut q = Requantiser::try_new(&timer, low, high, ShaperSpec::new(order)).unwrap();
+        time_stage(name, &hs, |vs| tt_loop_requant(&mut q, vs));
+    }
 
     // Rounded high counts for the bridge mapper.
     let mut q = Requantiser::try_new(&timer, low, high, ShaperSpec::ROUND).unwrap();

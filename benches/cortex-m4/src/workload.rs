@@ -10,6 +10,7 @@
 
 use ticktone::bridge::{BridgeKind, BridgeSpec, DeadTimeForm};
 use ticktone::edge::Sampling;
+use ticktone::requant::ShaperSpec;
 use ticktone::timer::{Edge, TimerSpec, UpdateScheme};
 use ticktone::{ConfigError, Counters, Modulator, ModulatorSpec};
 
@@ -72,10 +73,43 @@ pub fn bridge_full3_separate() -> BridgeSpec {
     }
 }
 
-/// The configurations built from the stages available today. Each one is
-/// timed and checksummed. Input at the update rate (`-r1`) where the
-/// oversampler is not used.
+/// The configurations, each timed and checksummed. Names: sampling, shaper
+/// (`round` or `ns<order>`), bridge; `-r1` means input at the update rate
+/// (no oversampler), else 48 kHz input and 16x oversampling.
 pub const CONFIGS: &[Config] = &[
+    // The two configurations of the issue: 48 kHz in, 16x, 3-level bridge
+    // with dead time; shapers as `ShaperSpec::new` gives them (band zeros,
+    // poles for sum|h| <= 8, no dither).
+    Config {
+        name: "chain-natural-ns5-full3",
+        input_hz: 48_000,
+        spec: || ModulatorSpec {
+            sampling: Sampling::NATURAL,
+            shaper: ShaperSpec::new(5),
+            ..ModulatorSpec::new(timer_updown_double(), bridge_full3(), 48e3)
+        },
+    },
+    Config {
+        name: "chain-uniform-ns3-full3",
+        input_hz: 48_000,
+        spec: || ModulatorSpec {
+            shaper: ShaperSpec::new(3),
+            ..ModulatorSpec::new(timer_updown_double(), bridge_full3(), 48e3)
+        },
+    },
+    Config {
+        name: "chain-uniform-round-full3",
+        input_hz: 48_000,
+        spec: || ModulatorSpec::new(timer_updown_double(), bridge_full3(), 48e3),
+    },
+    Config {
+        name: "chain-natural-round-full3",
+        input_hz: 48_000,
+        spec: || ModulatorSpec {
+            sampling: Sampling::NATURAL,
+            ..ModulatorSpec::new(timer_updown_double(), bridge_full3(), 48e3)
+        },
+    },
     Config {
         name: "chain-uniform-round-full3-r1",
         input_hz: 768_000,
