@@ -281,15 +281,25 @@ impl Bridge {
     /// [`Bridge::words_per_update`] entries are valid.
     #[inline(always)]
     pub fn words(&self, c: u32) -> [u32; MAX_WORDS] {
-        debug_assert!(self.low <= c && c <= self.high);
         let leg_b = match self.spec.kind {
             BridgeKind::Full3 => self.top - c,
             BridgeKind::Half | BridgeKind::Full2 => c,
         };
+        self.words_legs(c, leg_b)
+    }
+
+    /// Compare words for a 3-level bridge whose legs have their own high
+    /// counts (natural sampling solves leg B from `-x`); for the other
+    /// kinds `leg_b` must equal `leg_a`. Both within
+    /// [`Bridge::high_count_range`].
+    #[inline(always)]
+    pub fn words_legs(&self, leg_a: u32, leg_b: u32) -> [u32; MAX_WORDS] {
+        debug_assert!(self.low <= leg_a && leg_a <= self.high);
+        debug_assert!(self.low <= leg_b && leg_b <= self.high);
         let (ra, rb) = if self.mirrored {
-            (self.top - c, self.top - leg_b)
+            (self.top - leg_a, self.top - leg_b)
         } else {
-            (c, leg_b)
+            (leg_a, leg_b)
         };
         match (self.spec.form, self.spec.kind) {
             (DeadTimeForm::Generator, _) => [ra, rb, 0, 0],

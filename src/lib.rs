@@ -12,6 +12,7 @@ pub mod crossing;
 pub mod dither;
 pub mod edge;
 pub mod error;
+pub mod leg_pair;
 pub mod modulator;
 pub mod ntf;
 pub mod oversample;

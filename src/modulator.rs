@@ -30,9 +30,10 @@
 //! assert_eq!(out, [192, 128, 64]);
 //! ```
 
-use crate::bridge::{Bridge, BridgeSpec, MAX_WORDS};
+use crate::bridge::{Bridge, BridgeKind, BridgeSpec, MAX_WORDS};
 use crate::edge::{EdgeSolver, Sampling};
 use crate::error::ConfigError;
+use crate::leg_pair::{LegPair, MARGIN_TICKS};
 use crate::oversample::{Oversampler, MAX_RATIO};
 use crate::requant::{Requantiser, ShaperSpec};
 use crate::sample::Sample;
@@ -107,6 +108,9 @@ pub struct Counters {
 struct Channel {
     over: Oversampler,
     edge: EdgeSolver,
+    /// 3-level bridge with natural sampling only: leg B's own crossing and
+    /// the common-mode rounding (see [`crate::leg_pair`]).
+    pair: Option<LegPair>,
     quant: Requantiser,
 }
 
@@ -151,10 +155,29 @@ impl<const CH: usize> Modulator<CH> {
         }
         let ratio = ratio as u32;
         let (low, high) = bridge.high_count_range();
+        let pair = matches!(
+            (spec.bridge.kind, spec.sampling),
+            (BridgeKind::Full3, Sampling::Natural { .. })
+        );
+        // Room for the common-mode part of a leg pair (see `leg_pair`).
+        let margin = if pair {
+            MARGIN_TICKS.min((high - low) / 4)
+        } else {
+            0
+        };
         let channel = Channel {
             over: Oversampler::try_new(ratio)?,
             edge: EdgeSolver::try_new(&timer, spec.sampling)?,
-            quant: Requantiser::try_new(&timer, low, high, spec.shaper)?,
+            pair: match pair {
+                true => Some(LegPair::new(
+                    EdgeSolver::try_new(&timer, spec.sampling)?,
+                    timer.top(),
+                    low,
+                    high,
+                )),
+                false => None,
+            },
+            quant: Requantiser::try_new(&timer, low + margin, high - margin, spec.shaper)?,
         };
         Ok(Self {
             timer,
@@ -202,6 +225,11 @@ impl<const CH: usize> Modulator<CH> {
             let q = ch.quant.counts();
             c.low_clamped = c.low_clamped.wrapping_add(q.low);
             c.high_clamped = c.high_clamped.wrapping_add(q.high);
+            if let Some(p) = &ch.pair {
+                let q = p.counts();
+                c.low_clamped = c.low_clamped.wrapping_add(q.low);
+                c.high_clamped = c.high_clamped.wrapping_add(q.high);
+            }
         }
         c
     }
@@ -211,6 +239,9 @@ impl<const CH: usize> Modulator<CH> {
         self.input_clamped = 0;
         for ch in &mut self.channels {
             ch.quant.clear_counts();
+            if let Some(p) = &mut ch.pair {
+                p.clear_counts();
+            }
         }
     }
 
@@ -228,10 +259,26 @@ impl<const CH: usize> Modulator<CH> {
                 channel
                     .over
                     .push(s.to_q31(&mut self.input_clamped), &mut fine);
-                // Signal values become high counts, a block at a time.
-                channel.edge.process(&mut fine[..self.ratio]);
                 // Update u of channel ch starts at word (u * CH + ch) * wpu.
                 let dsts = words.chunks_exact_mut(wpu).skip(ch).step_by(CH);
+                if let Some(pair) = &mut channel.pair {
+                    // 3-level, natural sampling: leg B's own crossing (see
+                    // `leg_pair`); `fine` becomes the differential count,
+                    // `fine_b` the common-mode part.
+                    let mut fine_b = fine;
+                    channel.edge.process(&mut fine[..self.ratio]);
+                    pair.split(&mut fine[..self.ratio], &mut fine_b[..self.ratio]);
+                    for ((&n, &w), dst) in fine[..self.ratio].iter().zip(&fine_b).zip(dsts) {
+                        let (a, b) = pair.legs(channel.quant.quantise(n), w);
+                        let words: [u32; MAX_WORDS] = self.bridge.words_legs(a, b);
+                        for (d, &v) in dst.iter_mut().zip(&words) {
+                            *d = W::from_ticks(v);
+                        }
+                    }
+                    continue;
+                }
+                // Signal values become high counts, a block at a time.
+                channel.edge.process(&mut fine[..self.ratio]);
                 for (&h, dst) in fine[..self.ratio].iter().zip(dsts) {
                     let c = channel.quant.quantise(h);
                     let w: [u32; MAX_WORDS] = self.bridge.words(c);
