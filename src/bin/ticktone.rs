@@ -14,6 +14,7 @@ use ticktone::lab::run::{measure, LabSpec, Report};
 use ticktone::lab::units::{parse_db, parse_hz, parse_seconds};
 use ticktone::lab::wave::DeadNode;
 use ticktone::lab::{plot, SAFETY_CAUTION};
+use ticktone::ntf::NtfPoles;
 use ticktone::{
     BridgeKind, BridgeSpec, Counting, DeadTimeForm, Edge, ShaperSpec, Timer, TimerSpec,
     UpdateScheme,
@@ -51,6 +52,14 @@ enum EdgeArg {
 enum UpdateArg {
     Single,
     Double,
+}
+
+#[derive(Clone, Copy, Debug, ValueEnum)]
+enum PolesArg {
+    None,
+    Sum4,
+    Sum8,
+    Sum12,
 }
 
 #[derive(Clone, Copy, Debug, ValueEnum)]
@@ -105,11 +114,18 @@ struct MeasureArgs {
     #[arg(long, value_enum)]
     update: Option<UpdateArg>,
     /// Edge sampling.
-    #[arg(long, value_enum, default_value = "uniform")]
+    #[arg(long, value_enum, default_value = "natural")]
     sampling: SamplingArg,
     /// Noise-shaper order (0 = plain rounding).
-    #[arg(long, default_value_t = 0)]
+    #[arg(long, default_value_t = 5)]
     shaper: u8,
+    /// Noise-shaper zeros at half the update rate [default: 3 for a half
+    /// bridge or 2-level full bridge with two updates a period, else 0].
+    #[arg(long)]
+    half_rate_zeros: Option<u8>,
+    /// Noise-shaper poles: none (FIR) or a bound on sum|h| (headroom).
+    #[arg(long, value_enum, default_value = "sum8")]
+    poles: PolesArg,
     /// TPDF dither before rounding.
     #[arg(long)]
     dither: bool,
@@ -194,7 +210,20 @@ fn spec_from(a: &MeasureArgs) -> Result<LabSpec, String> {
             SamplingArg::Uniform => ExactSampling::Uniform,
             SamplingArg::Natural => ExactSampling::Natural,
         },
-        shaper: ShaperSpec::new(a.shaper).with_dither(a.dither),
+        shaper: if a.shaper == 0 {
+            ShaperSpec::ROUND.with_dither(a.dither)
+        } else {
+            let mixing = kind != BridgeKind::Full3 && t.update() == UpdateScheme::Double;
+            ShaperSpec::new(a.shaper)
+                .with_dither(a.dither)
+                .with_half_rate_zeros(a.half_rate_zeros.unwrap_or(if mixing { 3 } else { 0 }))
+                .with_poles(match a.poles {
+                    PolesArg::None => NtfPoles::None,
+                    PolesArg::Sum4 => NtfPoles::Sum4,
+                    PolesArg::Sum8 => NtfPoles::Sum8,
+                    PolesArg::Sum12 => NtfPoles::Sum12,
+                })
+        },
         tone_hz: a.tone,
         level_dbfs: a.level,
         record_s: a.record,
