@@ -250,39 +250,70 @@ impl<const CH: usize> Modulator<CH> {
     /// `min(input.len() / CH, out.len() / words_per_frame())`, and returns
     /// that number; a partial frame at the end of either slice is left alone.
     pub fn process<S: Sample, W: CompareWord>(&mut self, input: &[S], out: &mut [W]) -> usize {
-        let wpu = self.bridge.words_per_update();
-        let per_frame = self.words_per_frame();
+        // The words of one update are a fixed-size array from here on, so
+        // the loops below carry no length checks.
+        match self.bridge.words_per_update() {
+            1 => self.process_n::<S, W, 1>(input, out),
+            2 => self.process_n::<S, W, 2>(input, out),
+            _ => self.process_n::<S, W, MAX_WORDS>(input, out),
+        }
+    }
+
+    /// [`Modulator::process`] for `N` words an update.
+    #[inline(always)]
+    fn process_n<S: Sample, W: CompareWord, const N: usize>(
+        &mut self,
+        input: &[S],
+        out: &mut [W],
+    ) -> usize {
+        // 1 <= ratio <= MAX_RATIO by construction; the clamp lets the
+        // compiler see it (no slice or chunk-size checks left).
+        let ratio = self.ratio.clamp(1, MAX_RATIO);
+        let per_frame = ratio * CH * N;
+        // Per channel: the block of updates this frame makes (signal, then
+        // high counts, then ticks), and for a 3-level natural leg pair the
+        // common-mode parts.
+        let mut fine = [[0i32; MAX_RATIO]; CH];
+        let mut common = [[0i32; MAX_RATIO]; CH];
         let mut frames = 0;
-        let mut fine = [0i32; MAX_RATIO];
         for (frame, words) in input.chunks_exact(CH).zip(out.chunks_exact_mut(per_frame)) {
-            for (ch, (channel, &s)) in self.channels.iter_mut().zip(frame).enumerate() {
-                channel
-                    .over
-                    .push(s.to_q31(&mut self.input_clamped), &mut fine);
-                // Update u of channel ch starts at word (u * CH + ch) * wpu.
-                let dsts = words.chunks_exact_mut(wpu).skip(ch).step_by(CH);
-                if let Some(pair) = &mut channel.pair {
-                    // 3-level, natural sampling: leg B's own crossing (see
-                    // `leg_pair`); `fine` becomes the differential count,
-                    // `fine_b` the common-mode part.
-                    let mut fine_b = fine;
-                    channel.edge.process(&mut fine[..self.ratio]);
-                    pair.split(&mut fine[..self.ratio], &mut fine_b[..self.ratio]);
-                    for ((&n, &w), dst) in fine[..self.ratio].iter().zip(&fine_b).zip(dsts) {
-                        let (a, b) = pair.legs(channel.quant.quantise(n), w);
-                        let words: [u32; MAX_WORDS] = self.bridge.words_legs(a, b);
-                        for (d, &v) in dst.iter_mut().zip(&words) {
-                            *d = W::from_ticks(v);
-                        }
+            // Stage by stage over the block, one channel at a time.
+            for (((channel, &s), f), w) in self
+                .channels
+                .iter_mut()
+                .zip(frame)
+                .zip(fine.iter_mut())
+                .zip(common.iter_mut())
+            {
+                channel.over.push(s.to_q31(&mut self.input_clamped), f);
+                match &mut channel.pair {
+                    None => channel.edge.process(&mut f[..ratio]),
+                    Some(pair) => {
+                        // 3-level, natural sampling: leg B's own crossing
+                        // (see `leg_pair`); `f` becomes the differential
+                        // count, `w` the common-mode part.
+                        *w = *f;
+                        channel.edge.process(&mut f[..ratio]);
+                        pair.split(&mut f[..ratio], &mut w[..ratio]);
                     }
-                    continue;
                 }
-                // Signal values become high counts, a block at a time.
-                channel.edge.process(&mut fine[..self.ratio]);
-                for (&h, dst) in fine[..self.ratio].iter().zip(dsts) {
-                    let c = channel.quant.quantise(h);
-                    let w: [u32; MAX_WORDS] = self.bridge.words(c);
-                    for (d, &v) in dst.iter_mut().zip(&w) {
+                channel.quant.process(&mut f[..ratio]);
+            }
+            // Words in DMA order: update by update, channel by channel.
+            let (slots, _) = words.as_chunks_mut::<N>();
+            let mut slots = slots.iter_mut();
+            for u in 0..ratio {
+                for ((channel, f), w) in self.channels.iter_mut().zip(&fine).zip(&common) {
+                    let Some(dst) = slots.next() else { break };
+                    let c = f[u] as u32;
+                    let v = match &mut channel.pair {
+                        None => self.bridge.words(c),
+                        Some(pair) => {
+                            let (a, b) = pair.legs(c, w[u]);
+                            self.bridge.words_legs(a, b)
+                        }
+                    };
+                    for (d, &v) in dst.iter_mut().zip(&v) {
                         *d = W::from_ticks(v);
                     }
                 }
