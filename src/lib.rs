@@ -24,9 +24,9 @@ pub mod timer;
 #[cfg(feature = "std")]
 pub mod lab;
 #[cfg(feature = "std")]
-pub mod rebuild;
-#[cfg(feature = "std")]
 pub mod oversample_design;
+#[cfg(feature = "std")]
+pub mod rebuild;
 
 pub use bridge::{Bridge, BridgeKind, BridgeSpec, DeadTimeForm, LegMode};
 pub use edge::Sampling;
