@@ -40,8 +40,10 @@ const BLOCKS: [usize; 2] = [32, 128];
 
 /// The chain configurations benchmarked against the f64 model.
 const BENCHED: &[&str] = &[
+    "chain-natural-ns5-full3",
+    "chain-uniform-ns3-full3",
+    "chain-uniform-round-full3",
     "chain-uniform-round-full3-r1",
-    "chain-natural-round-full3-r1",
 ];
 
 fn config(name: &str) -> &'static Config {
