@@ -89,16 +89,22 @@ impl LegPair {
         self.counts = ClampCounts::default();
     }
 
-    /// Solve both legs. On entry `a` holds leg A's high counts (already
-    /// solved) and `b` the signal `x` of the same updates; on return `a`
-    /// holds the differential counts `n` and `b` the common-mode parts `w`,
-    /// all in Q16 ticks.
+    /// Solve both legs. On entry `a` holds the signal `x` of a block of
+    /// updates (`b` the same length, any content); on return `a` holds the
+    /// differential counts `n` and `b` the common-mode parts `w`, all in
+    /// Q16 ticks. One interpolation serves both legs where the solver has a
+    /// crossing a slot ([`EdgeSolver::process_pair`]); otherwise leg B has
+    /// its own solver, fed `-x`.
     #[inline]
-    pub fn split(&mut self, a: &mut [i32], b: &mut [i32]) {
-        for v in b.iter_mut() {
-            *v = v.saturating_neg();
+    pub fn split(&mut self, edge_a: &mut EdgeSolver, a: &mut [i32], b: &mut [i32]) {
+        if !edge_a.process_pair(a, b) {
+            b.copy_from_slice(a);
+            edge_a.process(a);
+            for v in b.iter_mut() {
+                *v = v.saturating_neg();
+            }
+            self.edge_b.process(b);
         }
-        self.edge_b.process(b);
         for (ca, cb) in a.iter_mut().zip(b.iter_mut()) {
             let (sa, sb) = (*ca as i64, *cb as i64);
             *ca = ((sa - sb + self.top_q16 as i64) >> 1) as i32;

@@ -292,9 +292,7 @@ impl<const CH: usize> Modulator<CH> {
                         // 3-level, natural sampling: leg B's own crossing
                         // (see `leg_pair`); `f` becomes the differential
                         // count, `w` the common-mode part.
-                        *w = *f;
-                        channel.edge.process(&mut f[..ratio]);
-                        pair.split(&mut f[..ratio], &mut w[..ratio]);
+                        pair.split(&mut channel.edge, &mut f[..ratio], &mut w[..ratio]);
                     }
                 }
                 channel.quant.process(&mut f[..ratio]);
