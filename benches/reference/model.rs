@@ -130,6 +130,8 @@ struct Channel {
     /// Shaper state, newest first.
     state: Vec<f64>,
     slot: usize,
+    /// 3-level natural leg pair: last two pulse-position rounding errors.
+    pos_err: [f64; 2],
 }
 
 /// The reference chain for `CH` interleaved channels.
@@ -165,6 +167,7 @@ impl RefChain {
             hist: [0.0; 4],
             state: vec![0.0; spec.feedback.len()],
             slot: 0,
+            pos_err: [0.0; 2],
         };
         Self {
             channels: vec![ch; channels],
@@ -172,12 +175,22 @@ impl RefChain {
         }
     }
 
-    /// The signal value (in [-1, 1]) that sets the edge of the next update.
-    fn edge_value(spec: &RefSpec, ch: &mut Channel, x: f64) -> f64 {
+    /// The signal values (in [-1, 1]) that set the edge of the next update
+    /// for `x` and, for the second leg of a 3-level bridge, for `-x`.
+    fn edge_value(spec: &RefSpec, ch: &mut Channel, x: f64) -> (f64, f64) {
         ch.hist.copy_within(1.., 0);
         ch.hist[3] = x;
         let falling = spec.alternate && ch.slot.is_multiple_of(2);
         ch.slot += 1;
+        let minus: [f64; 4] = ch.hist.map(|v| -v);
+        (
+            Self::crossing(spec, &ch.hist, falling, x),
+            Self::crossing(spec, &minus, falling, -x),
+        )
+    }
+
+    /// The crossing of the cubic through `hist` with the slot's carrier.
+    fn crossing(spec: &RefSpec, hist: &[f64; 4], falling: bool, x: f64) -> f64 {
         match spec.sampling {
             RefSampling::Uniform => x,
             RefSampling::Natural { iterations } => {
@@ -186,12 +199,12 @@ impl RefChain {
                 let (c0, slope) = if falling { (1.0, -2.0) } else { (-1.0, 2.0) };
                 let mut t = 0.5;
                 for _ in 0..iterations {
-                    let (s, ds) = cubic(&ch.hist, t);
+                    let (s, ds) = cubic(hist, t);
                     let g = c0 + slope * t - s;
                     t = (t - g / (slope - ds)).clamp(0.0, 1.0);
                 }
                 if iterations == 0 {
-                    cubic(&ch.hist, t).0
+                    cubic(hist, t).0
                 } else {
                     c0 + slope * t
                 }
@@ -241,10 +254,27 @@ impl RefChain {
                     fine[..n].copy_from_slice(&next[..n]);
                 }
                 for (u, &xu) in fine[..ratio].iter().enumerate() {
-                    let s = Self::edge_value(&self.spec, ch, xu);
-                    let v = (1.0 + s) / 2.0 * self.spec.top;
-                    let r = Self::requantise(&self.spec, ch, v);
-                    let b = self.spec.top - r;
+                    let (s, s_minus) = Self::edge_value(&self.spec, ch, xu);
+                    let top = self.spec.top;
+                    let ca = (1.0 + s) / 2.0 * top;
+                    let cb = (1.0 + s_minus) / 2.0 * top;
+                    let pair = !matches!(self.spec.bridge, RefBridge::Half)
+                        && matches!(self.spec.sampling, RefSampling::Natural { .. });
+                    let (r, b) = if pair {
+                        // 3-level natural (ticktone's leg_pair.rs): the
+                        // differential count through the shaper, the pulse
+                        // position rounded with error feedback (1 + z^-1)^2.
+                        let n = Self::requantise(&self.spec, ch, (ca - cb + top) / 2.0);
+                        let w = (ca + cb - top) / 2.0;
+                        let v = w + 2.0 * ch.pos_err[0] + ch.pos_err[1];
+                        let m = (v + 0.5).floor();
+                        ch.pos_err = [m - v, ch.pos_err[0]];
+                        let (lo, hi) = (self.spec.low, self.spec.high);
+                        ((n + m).clamp(lo, hi), (top - n + m).clamp(lo, hi))
+                    } else {
+                        let r = Self::requantise(&self.spec, ch, ca);
+                        (r, top - r)
+                    };
                     let dst = &mut words[(u * nch + c) * wpu..][..wpu];
                     match self.spec.bridge {
                         RefBridge::Half => dst[0] = r as u32,
