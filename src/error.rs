@@ -144,6 +144,14 @@ pub enum ConfigError {
         /// Update rate, Hz.
         update_hz: f64,
     },
+    /// Bring-up tone: no whole cycles below half the sample rate, or a
+    /// level outside [0, 1].
+    BringUpTone {
+        /// Cycles asked for in the table.
+        cycles: u32,
+        /// Samples in the table.
+        samples: u32,
+    },
     /// Natural sampling parameters out of range.
     NaturalSampling {
         /// Interpolation order asked for.
@@ -237,6 +245,11 @@ impl fmt::Display for ConfigError {
             ShaperBand { update_hz } => write!(
                 f,
                 "noise shaping needs an update rate above 40000 Hz (twice the 20 kHz band), got {update_hz} Hz"
+            ),
+            BringUpTone { cycles, samples } => write!(
+                f,
+                "bring-up tone: {cycles} cycles in {samples} samples must be at least 1 and below \
+                 {samples} / 2, and the level within 0 to 1"
             ),
             NaturalSampling { order, iterations } => write!(
                 f,

@@ -20,6 +20,7 @@ pub mod queue;
 pub mod requant;
 pub mod sample;
 pub mod timer;
+pub mod tone;
 
 #[cfg(feature = "std")]
 pub mod lab;
