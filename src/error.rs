@@ -178,7 +178,7 @@ impl fmt::Display for ConfigError {
             PeriodNotWhole { clock_hz, carrier_hz, below, above } => write!(
                 f,
                 "carrier {carrier_hz} Hz does not give a whole number of ticks at {clock_hz} Hz; \
-                 nearest carriers that do: {} Hz ({below} ticks) and {} Hz ({above} ticks)",
+                 nearest carriers that do: {:.1} Hz ({below} ticks) and {:.1} Hz ({above} ticks)",
                 clock_hz / below as f64,
                 clock_hz / above as f64
             ),
