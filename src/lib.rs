@@ -27,6 +27,8 @@ pub mod lab;
 #[cfg(feature = "std")]
 pub mod oversample_design;
 #[cfg(feature = "std")]
+pub mod plan;
+#[cfg(feature = "std")]
 pub mod rebuild;
 
 pub use bridge::{Bridge, BridgeKind, BridgeSpec, DeadTimeForm, LegMode};

@@ -33,6 +33,94 @@ enum Cmd {
     /// from the compare values and measure it (AES17 conventions).
     #[command(after_help = SAFETY_CAUTION)]
     Measure(MeasureArgs),
+    /// Choose timer clock, carrier, counting mode, update scheme and
+    /// noise-shaper order for a target in-band SNR, with the input rate
+    /// locked to the update rate.
+    #[command(after_help = SAFETY_CAUTION)]
+    Plan(PlanArgs),
+}
+
+#[derive(Args, Debug)]
+struct PlanArgs {
+    /// Input sample rate.
+    #[arg(long, default_value = "48kHz", value_parser = parse_hz)]
+    rate: f64,
+    /// Timer clock the part can run at (repeat for several).
+    #[arg(long, default_values = ["98.304MHz"], value_parser = parse_hz)]
+    clock: Vec<f64>,
+    /// Lowest carrier to consider.
+    #[arg(long, default_value = "200kHz", value_parser = parse_hz)]
+    carrier_min: f64,
+    /// Highest carrier to consider (switching losses grow with it).
+    #[arg(long, default_value = "800kHz", value_parser = parse_hz)]
+    carrier_max: f64,
+    /// Audio band edge.
+    #[arg(long, default_value = "20kHz", value_parser = parse_hz)]
+    band: f64,
+    /// In-band SNR to reach, dB.
+    #[arg(long, default_value_t = 110.0)]
+    snr: f64,
+    /// Bridge.
+    #[arg(long, value_enum, default_value = "full3")]
+    bridge: BridgeArg,
+    /// Highest noise-shaper order to consider.
+    #[arg(long, default_value_t = 5)]
+    max_order: u8,
+    /// Rows to show.
+    #[arg(long, default_value_t = 12)]
+    rows: usize,
+    /// Measure the first N rows with the lab (natural sampling, 997 Hz at
+    /// -1 dBFS, 0.5 s records).
+    #[arg(long, default_value_t = 0)]
+    verify: usize,
+}
+
+fn run_plan(a: &PlanArgs) -> Result<(), String> {
+    let bridge = match a.bridge {
+        BridgeArg::Half => BridgeKind::Half,
+        BridgeArg::Full2 => BridgeKind::Full2,
+        BridgeArg::Full3 => BridgeKind::Full3,
+    };
+    let spec = ticktone::plan::PlanSpec {
+        input_rate_hz: a.rate,
+        clocks_hz: a.clock.clone(),
+        carrier_min_hz: a.carrier_min,
+        carrier_max_hz: a.carrier_max,
+        band_hz: a.band,
+        target_snr_db: a.snr,
+        bridge,
+        max_order: a.max_order,
+    };
+    let rows = ticktone::plan::plan(&spec).map_err(|e| e.to_string())?;
+    let mut out = ticktone::plan::table(&spec, &rows, a.rows);
+    if a.verify > 0 {
+        out.push_str("\n  measured by the lab (natural sampling, 997 Hz at -1 dBFS):\n");
+    }
+    for c in rows.iter().take(a.verify) {
+        let mut lab = LabSpec::reference();
+        lab.timer = c.timer_spec();
+        lab.bridge = BridgeSpec::ideal(bridge);
+        lab.input_rate_hz = a.rate;
+        lab.sampling = ExactSampling::Natural;
+        lab.shaper = ticktone::plan::shaper(c.order);
+        lab.record_s = 0.5;
+        lab.bandwidth_hz = a.band;
+        let (_, _, m) = ticktone::lab::run::measure_once(&lab).map_err(|e| e.to_string())?;
+        out.push_str(&format!(
+            "  {:>10.4} MHz {:>9.3} kHz order {}: SNR {:.1} dB (predicted {:.1}), THD+N {:.1} dB\n",
+            c.clock_hz / 1e6,
+            c.carrier_hz / 1e3,
+            c.order,
+            m.snr_db,
+            c.predicted_snr_db,
+            m.thdn_db
+        ));
+    }
+    out.push('\n');
+    out.push_str(SAFETY_CAUTION);
+    out.push('\n');
+    emit(&out);
+    Ok(())
 }
 
 #[derive(Clone, Copy, Debug, ValueEnum)]
@@ -455,6 +543,14 @@ fn main() -> ExitCode {
             Ok(()) => ExitCode::SUCCESS,
             Err(e) => {
                 eprintln!("ticktone measure: {e}");
+                eprintln!("{SAFETY_CAUTION}");
+                ExitCode::from(2)
+            }
+        },
+        Cmd::Plan(a) => match run_plan(&a) {
+            Ok(()) => ExitCode::SUCCESS,
+            Err(e) => {
+                eprintln!("ticktone plan: {e}");
                 eprintln!("{SAFETY_CAUTION}");
                 ExitCode::from(2)
             }
