@@ -41,7 +41,10 @@ fn matches_the_textbook_table() {
             let q = Requantiser::try_new(&t, 0, 256, dc_fir(l)).unwrap();
             let got = predicted_snr_db(&t, &q, 20e3);
             let want = if col == 1 { a } else { b };
-            assert!((got - want).abs() < 0.05, "L={l} carrier {carrier}: {got:.2} vs {want}");
+            assert!(
+                (got - want).abs() < 0.05,
+                "L={l} carrier {carrier}: {got:.2} vs {want}"
+            );
         }
     }
 }
@@ -85,7 +88,10 @@ fn prediction_agrees_with_the_lab() {
         lab.shaper = ShaperSpec::new(order);
         lab.record_s = 0.5;
         let (_, _, m) = measure_once(&lab).unwrap();
-        println!("order {order}: predicted {predicted:.1} dB, lab {:.1} dB", m.snr_db);
+        println!(
+            "order {order}: predicted {predicted:.1} dB, lab {:.1} dB",
+            m.snr_db
+        );
         let (below, above) = if order <= 3 { (1.0, 1.0) } else { (4.0, 0.5) };
         assert!(
             m.snr_db > predicted - below && m.snr_db < predicted + above,
@@ -94,8 +100,13 @@ fn prediction_agrees_with_the_lab() {
         );
     }
     // Sorted: rows that reach the target first, lowest carrier first.
-    let first_miss = rows.iter().position(|c| !c.meets(110.0)).unwrap_or(rows.len());
-    assert!(rows[..first_miss].windows(2).all(|w| w[0].carrier_hz <= w[1].carrier_hz));
+    let first_miss = rows
+        .iter()
+        .position(|c| !c.meets(110.0))
+        .unwrap_or(rows.len());
+    assert!(rows[..first_miss]
+        .windows(2)
+        .all(|w| w[0].carrier_hz <= w[1].carrier_hz));
 }
 
 /// A 100 MHz clock locks no carrier to 48 kHz: the nearest clock that does
@@ -105,7 +116,10 @@ fn rate_lock() {
     let spec = reference_plan();
     let (clock, ppm) = nearest_lock(&spec, 98.304e6).unwrap();
     assert!((clock - 98.304e6).abs() < 1e-3 && ppm.abs() < 1e-9);
-    let spec = PlanSpec { clocks_hz: vec![100e6], ..reference_plan() };
+    let spec = PlanSpec {
+        clocks_hz: vec![100e6],
+        ..reference_plan()
+    };
     assert!(plan(&spec).unwrap().is_empty());
     let (clock, ppm) = nearest_lock(&spec, 100e6).unwrap();
     // 100e6 / 98.304e6 - 1 = 17 252 ppm; any locking clock is a multiple
