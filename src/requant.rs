@@ -387,19 +387,29 @@ impl Requantiser {
         (q as u32, r)
     }
 
-    /// A block with a filter of `M` taps, with or without poles.
+    /// A block with a filter of `M` taps, with or without poles; dither
+    /// decided once a block.
     #[inline(always)]
     fn run<const M: usize, const IIR: bool>(&mut self, block: &mut [i32]) {
+        if self.dither {
+            self.run_d::<M, IIR, true>(block);
+        } else {
+            self.run_d::<M, IIR, false>(block);
+        }
+    }
+
+    /// [`Requantiser::run`] with dither on or off.
+    #[inline(always)]
+    fn run_d<const M: usize, const IIR: bool, const DITHER: bool>(&mut self, block: &mut [i32]) {
         let k = self.arrays::<M, IIR>();
         let mut st: [i32; M] = core::array::from_fn(|i| self.state[i]);
         let (in_low, in_high) = (self.in_low, self.in_high);
         let range = (self.q_low, self.q_high);
         let mut counts = self.counts;
         let mut prng = self.prng;
-        let dither = self.dither;
         for h in block.iter_mut() {
             let v = Self::clamp_input(in_low, in_high, *h, &mut counts);
-            let dith = if dither { prng.next_q16() } else { 0 };
+            let dith = if DITHER { prng.next_q16() } else { 0 };
             *h = kernel::<M, IIR>(&mut st, &k, v, dith, range, &mut counts.overload).0;
         }
         self.state[..M].copy_from_slice(&st);
