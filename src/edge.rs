@@ -263,23 +263,37 @@ impl EdgeSolver {
     /// period): the caller then solves leg B from `-x` with a second solver.
     #[inline]
     pub fn process_pair(&mut self, a: &mut [i32], b: &mut [i32]) -> bool {
+        self.pair_dispatch::<false>(a, b)
+    }
+
+    /// [`EdgeSolver::process_pair`], returning the differential and
+    /// common-mode parts `((c_A - c_B + top) / 2, (c_A + c_B - top) / 2)`
+    /// (floored, Q16 ticks) in `a` and `b` instead of the two counts (the
+    /// leg pair's split, fused into the same loop).
+    #[inline]
+    pub(crate) fn process_pair_split(&mut self, a: &mut [i32], b: &mut [i32]) -> bool {
+        self.pair_dispatch::<true>(a, b)
+    }
+
+    #[inline(always)]
+    fn pair_dispatch<const SPLIT: bool>(&mut self, a: &mut [i32], b: &mut [i32]) -> bool {
         if self.geometry != Geometry::Crossing {
             return false;
         }
         match (self.order, self.iterations) {
-            (1, 1) => self.crossings_pair::<1, 1>(a, b),
-            (2, 1) => self.crossings_pair::<2, 1>(a, b),
-            (3, 1) => self.crossings_pair::<3, 1>(a, b),
-            (1, _) => self.crossings_pair::<1, 0>(a, b),
-            (2, _) => self.crossings_pair::<2, 0>(a, b),
-            _ => self.crossings_pair::<3, 0>(a, b),
+            (1, 1) => self.crossings_pair::<1, 1, SPLIT>(a, b),
+            (2, 1) => self.crossings_pair::<2, 1, SPLIT>(a, b),
+            (3, 1) => self.crossings_pair::<3, 1, SPLIT>(a, b),
+            (1, _) => self.crossings_pair::<1, 0, SPLIT>(a, b),
+            (2, _) => self.crossings_pair::<2, 0, SPLIT>(a, b),
+            _ => self.crossings_pair::<3, 0, SPLIT>(a, b),
         }
         true
     }
 
     /// [`EdgeSolver::crossings`] for both legs of a 3-level bridge.
     #[inline(never)]
-    fn crossings_pair<const ORDER: u8, const ONE_STEP: u32>(
+    fn crossings_pair<const ORDER: u8, const ONE_STEP: u32, const SPLIT: bool>(
         &mut self,
         a: &mut [i32],
         b: &mut [i32],
@@ -301,8 +315,12 @@ impl EdgeSolver {
             phase ^= toggle;
             let va = p.reversed_if(phase).crossing(steps);
             let vb = p.reversed_if(!phase).crossing(steps).saturating_neg();
-            *xa = high_count(va, top16);
-            *xb = high_count(vb, top16);
+            let (ca, cb) = (high_count(va, top16), high_count(vb, top16));
+            if SPLIT {
+                (*xa, *xb) = split_counts(ca, cb, top16);
+            } else {
+                (*xa, *xb) = (ca, cb);
+            }
         }
         self.hist = h;
         self.phase = phase;
@@ -443,6 +461,16 @@ fn slot_crossing<const ORDER: u8>(h: &mut [i32; 4], x: i32, falling: bool, steps
     };
     let p = if falling { p.reversed() } else { p };
     p.crossing(steps)
+}
+
+/// `((a - b + top16) / 2, (a + b - top16) / 2)`, floored, for two high
+/// counts `a`, `b` in `[0, top16]` with `top16 <= 2^30`: the first sum lies
+/// in `[0, 2^31]` (exact in `u32`), the second in `[-2^30, 2^30]`.
+#[inline(always)]
+pub(crate) fn split_counts(a: i32, b: i32, top16: u32) -> (i32, i32) {
+    let n = ((a as u32).wrapping_sub(b as u32).wrapping_add(top16) >> 1) as i32;
+    let w = a.wrapping_add(b).wrapping_sub(top16 as i32) >> 1;
+    (n, w)
 }
 
 /// `(1 + x) / 2 * top` in Q16 ticks for x in Q1.31, given

@@ -40,7 +40,7 @@
 //! to the range and the clamp is counted; the main requantiser keeps 2
 //! ticks of margin so that this happens only for such signals.
 
-use crate::edge::{EdgeSolver, FRAC_BITS};
+use crate::edge::{split_counts, EdgeSolver, FRAC_BITS};
 use crate::requant::ClampCounts;
 
 const HALF: i32 = 1 << (FRAC_BITS - 1);
@@ -97,18 +97,19 @@ impl LegPair {
     /// its own solver, fed `-x`.
     #[inline]
     pub fn split(&mut self, edge_a: &mut EdgeSolver, a: &mut [i32], b: &mut [i32]) {
-        if !edge_a.process_pair(a, b) {
-            b.copy_from_slice(a);
-            edge_a.process(a);
-            for v in b.iter_mut() {
-                *v = v.saturating_neg();
-            }
-            self.edge_b.process(b);
+        if edge_a.process_pair_split(a, b) {
+            return;
         }
+        b.copy_from_slice(a);
+        edge_a.process(a);
+        for v in b.iter_mut() {
+            *v = v.saturating_neg();
+        }
+        self.edge_b.process(b);
+        // Both counts lie in [0, top << 16] (high_count).
+        let top16 = self.top_q16 as u32;
         for (ca, cb) in a.iter_mut().zip(b.iter_mut()) {
-            let (sa, sb) = (*ca as i64, *cb as i64);
-            *ca = ((sa - sb + self.top_q16 as i64) >> 1) as i32;
-            *cb = ((sa + sb - self.top_q16 as i64) >> 1) as i32;
+            (*ca, *cb) = split_counts(*ca, *cb, top16);
         }
     }
 
