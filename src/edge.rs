@@ -315,11 +315,14 @@ impl EdgeSolver {
             phase ^= toggle;
             let va = p.reversed_if(phase).crossing(steps);
             let vb = p.reversed_if(!phase).crossing(steps).saturating_neg();
-            let (ca, cb) = (high_count(va, top16), high_count(vb, top16));
             if SPLIT {
-                (*xa, *xb) = split_counts(ca, cb, top16);
+                // high_count(v) = mulh(v, top16) + top16 / 2 (exact, see
+                // there): the halves cancel in both parts of the split.
+                let (ha, hb) = (mulh(va, top16 as i32), mulh(vb, top16 as i32));
+                *xa = ((ha.wrapping_sub(hb) as u32).wrapping_add(top16) >> 1) as i32;
+                *xb = ha.wrapping_add(hb) >> 1;
             } else {
-                (*xa, *xb) = (ca, cb);
+                (*xa, *xb) = (high_count(va, top16), high_count(vb, top16));
             }
         }
         self.hist = h;
@@ -475,11 +478,12 @@ pub(crate) fn split_counts(a: i32, b: i32, top16: u32) -> (i32, i32) {
 
 /// `(1 + x) / 2 * top` in Q16 ticks for x in Q1.31, given
 /// `top16 = top << 16` (at most 2^30): exact, no rounding beyond the 16
-/// fraction bits (truncation of at most 2^-16 tick). One `UMULL`.
+/// fraction bits (truncation of at most 2^-16 tick). One `SMMLA`:
+/// `floor((x + 2^31) top16 / 2^32) = floor(x top16 / 2^32) + top16 / 2`
+/// exactly, `top16` being even.
 #[inline(always)]
 pub(crate) fn high_count(x: i32, top16: u32) -> i32 {
-    let unipolar = (x as u32) ^ 0x8000_0000; // (1 + x) / 2 in Q0.32
-    ((unipolar as u64 * top16 as u64) >> 32) as i32
+    mulh(x, top16 as i32) + (top16 >> 1) as i32
 }
 
 #[cfg(test)]
