@@ -144,6 +144,9 @@ pub struct Requantiser {
     dither: bool,
     prng: Tpdf,
     state: [i32; MAX_TAPS],
+    /// The block kernel may hold the state scaled by 2^[`SCALE_BITS`]
+    /// (bounds in [`Requantiser::try_new`]).
+    scaled: bool,
     headroom_q16: i32,
     top: u32,
     counts: ClampCounts,
@@ -151,6 +154,9 @@ pub struct Requantiser {
 
 const HALF: i32 = 1 << (FRAC_BITS - 1);
 const COEF_HALF: i64 = 1 << (COEF_FRAC_BITS - 1);
+/// `32 - COEF_FRAC_BITS`: with the state scaled by this many bits, a sum's
+/// rounded value is the high word of the 64-bit accumulator.
+const SCALE_BITS: u32 = 32 - COEF_FRAC_BITS;
 
 impl Requantiser {
     /// A requantiser for `timer` whose output stays within `[low, high]`
@@ -204,6 +210,10 @@ impl Requantiser {
                 half_rate_zeros: shaper.half_rate_zeros,
             });
         }
+        // The block kernel's scaled form (see `kernel`): the state times
+        // 2^SCALE_BITS within i32, the scaled sums plus v 2^32 within i64.
+        let scaled = s_max * ((1 << SCALE_BITS) as f64) < (1u64 << 31) as f64
+            && coef_sum * s_max < (1u64 << 54) as f64;
         Ok(Self {
             in_low: in_low as i32,
             in_high: in_high as i32,
@@ -214,6 +224,7 @@ impl Requantiser {
             dither: shaper.dither,
             prng: Tpdf::new(0),
             state: [0; MAX_TAPS],
+            scaled,
             headroom_q16: room as i32,
             top: timer.top(),
             counts: ClampCounts::default(),
@@ -391,18 +402,24 @@ impl Requantiser {
     /// decided once a block.
     #[inline(always)]
     fn run<const M: usize, const IIR: bool>(&mut self, block: &mut [i32]) {
-        if self.dither {
-            self.run_d::<M, IIR, true>(block);
-        } else {
-            self.run_d::<M, IIR, false>(block);
+        // No state, nothing to scale (M is a constant: no test left).
+        match (self.dither, M > 0 && self.scaled) {
+            (true, true) => self.run_d::<M, IIR, true, true>(block),
+            (true, false) => self.run_d::<M, IIR, true, false>(block),
+            (false, true) => self.run_d::<M, IIR, false, true>(block),
+            (false, false) => self.run_d::<M, IIR, false, false>(block),
         }
     }
 
-    /// [`Requantiser::run`] with dither on or off.
+    /// [`Requantiser::run`] with dither on or off, the state scaled or not.
     #[inline(always)]
-    fn run_d<const M: usize, const IIR: bool, const DITHER: bool>(&mut self, block: &mut [i32]) {
+    fn run_d<const M: usize, const IIR: bool, const DITHER: bool, const SCALED: bool>(
+        &mut self,
+        block: &mut [i32],
+    ) {
         let k = self.arrays::<M, IIR>();
-        let mut st: [i32; M] = core::array::from_fn(|i| self.state[i]);
+        let sh = if SCALED { SCALE_BITS } else { 0 };
+        let mut st: [i32; M] = core::array::from_fn(|i| self.state[i] << sh);
         let (in_low, in_high) = (self.in_low, self.in_high);
         let range = (self.q_low, self.q_high);
         let mut counts = self.counts;
@@ -410,9 +427,11 @@ impl Requantiser {
         for h in block.iter_mut() {
             let v = Self::clamp_input(in_low, in_high, *h, &mut counts);
             let dith = if DITHER { prng.next_q16() } else { 0 };
-            *h = kernel::<M, IIR>(&mut st, &k, v, dith, range, &mut counts.overload).0;
+            *h = kernel::<M, IIR, SCALED>(&mut st, &k, v, dith, range, &mut counts.overload).0;
         }
-        self.state[..M].copy_from_slice(&st);
+        for (d, &s) in self.state.iter_mut().zip(&st) {
+            *d = s >> sh;
+        }
         self.counts = counts;
         self.prng = prng;
     }
@@ -427,8 +446,14 @@ struct Coefs<const M: usize> {
 /// The per-update loop shared by [`Requantiser::quantise`] and
 /// [`Requantiser::process`]: feedback, rounding with dither, the guard, and
 /// the state update. Returns the tick and the rounding error (Q16).
+///
+/// `SCALED`: `st` holds the state times 2^[`SCALE_BITS`], so that
+/// `floor((S + 2^24) / 2^25)` for a sum `S` of products becomes the high
+/// word of `2^31 + 2^7 S` (and `u` that of `v 2^32 + 2^31 + 2^7 S`): the
+/// same values, exactly, when the scaled state fits `i32` and the sums
+/// `i64` (checked at configuration).
 #[inline(always)]
-fn kernel<const M: usize, const IIR: bool>(
+fn kernel<const M: usize, const IIR: bool, const SCALED: bool>(
     st: &mut [i32; M],
     k: &Coefs<M>,
     v: i32,
@@ -436,8 +461,11 @@ fn kernel<const M: usize, const IIR: bool>(
     (q_low, q_high): (i32, i32),
     overload: &mut u32,
 ) -> (i32, i32) {
-    let mut acc_c = COEF_HALF;
-    let mut acc_d = COEF_HALF;
+    let (mut acc_c, mut acc_d) = if SCALED {
+        (((v as i64) << 32) + (1 << 31), 1 << 31)
+    } else {
+        (COEF_HALF, COEF_HALF)
+    };
     for i in 0..M {
         let s = st[i] as i64;
         acc_c += k.c[i] as i64 * s;
@@ -445,7 +473,11 @@ fn kernel<const M: usize, const IIR: bool>(
             acc_d += k.d[i] as i64 * s;
         }
     }
-    let u = v + (acc_c >> COEF_FRAC_BITS) as i32;
+    let u = if SCALED {
+        (acc_c >> 32) as i32
+    } else {
+        v + (acc_c >> COEF_FRAC_BITS) as i32
+    };
     let ud = u + dith;
     let mut q = (ud + HALF) >> FRAC_BITS;
     if q < q_low {
@@ -458,15 +490,15 @@ fn kernel<const M: usize, const IIR: bool>(
     let r = (q << FRAC_BITS) - ud;
     if M > 0 {
         let e = r + dith;
-        let sn = if IIR {
-            e - (acc_d >> COEF_FRAC_BITS) as i32
-        } else {
-            e
+        let sn = match (IIR, SCALED) {
+            (false, _) => e,
+            (true, false) => e - (acc_d >> COEF_FRAC_BITS) as i32,
+            (true, true) => e - (acc_d >> 32) as i32,
         };
         for i in (1..M).rev() {
             st[i] = st[i - 1];
         }
-        st[0] = sn;
+        st[0] = if SCALED { sn << SCALE_BITS } else { sn };
     }
     (q, r)
 }
@@ -494,6 +526,21 @@ mod tests {
                 overload: 0
             }
         );
+    }
+
+    #[test]
+    fn shaped_block_kernel_uses_the_scaled_state() {
+        // The bit-exactness of the scaled block path against `quantise` is
+        // tested in tests/shaper.rs (block_and_sample_paths_are_bit_exact);
+        // this checks that those shapers do take that path.
+        let t = Timer::try_new(crate::timer::TimerSpec::new(98.304e6, 384e3)).unwrap();
+        for order in [1, 3, 5] {
+            for dither in [false, true] {
+                let spec = ShaperSpec::new(order).with_dither(dither);
+                let q = Requantiser::try_new(&t, 2, 126, spec).unwrap();
+                assert!(q.scaled, "order {order} dither {dither}");
+            }
+        }
     }
 
     #[test]
