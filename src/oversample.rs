@@ -322,14 +322,13 @@ fn run_ring<
     const { assert!(R == 2 * S && S.is_multiple_of(N) && S + 1 >= W && LEN == W - 1 + N && M == 2 * N) };
     let c = opaque(c);
     let q = batch_base::<S, N>(*pos);
-    let mut f = 0u32;
     if let Some(line) = ring
         .get(q + S + 1 - W..)
         .and_then(|s| s.first_chunk::<LEN>())
     {
         for (i, d) in dst.chunks_exact_mut(2).enumerate() {
             if let Some(w) = line.get(i..).and_then(|s| s.first_chunk::<W>()) {
-                d.copy_from_slice(&stage_pair::<K, W, SHIFT>(w, c, &mut f));
+                d.copy_from_slice(&stage_pair::<K, W, SHIFT>(w, c, flags));
             }
         }
     }
@@ -337,15 +336,23 @@ fn run_ring<
     if let (Some(a), Some(b)) = (lower.get_mut(q..q + N), upper.get(q..q + N)) {
         a.copy_from_slice(b);
     }
-    *flags |= f;
     *pos = q + N;
 }
 
-/// Saturate a Q3.29 high word to full scale, recording a clamp in `flags`.
+/// Saturate a Q3.29 high word to full scale, recording a clamp in `flags`
+/// (set non-zero).
+///
+/// `flags` is the caller's word in memory, written only on a clamp: a
+/// branch rather than a flag mask kept in a register. Besides costing no
+/// more instructions, the branch ends the basic block, so the compiler
+/// computes a stage's outputs one after the other instead of interleaving
+/// their sums and spilling the accumulators to the stack.
 #[inline(always)]
 fn saturate(y: i32, flags: &mut u32) -> i32 {
     let s = y.clamp(Q29_MIN, Q29_MAX);
-    *flags |= (y ^ s) as u32;
+    if s != y {
+        *flags = 1;
+    }
     s
 }
 
@@ -380,7 +387,6 @@ fn run_third<
     };
     let (e, f) = (opaque(e), opaque(f));
     let q = batch_base::<S, N>(*pos);
-    let mut fl = 0u32;
     if let Some(line) = ring
         .get(q + S + 1 - W3X..)
         .and_then(|s| s.first_chunk::<LEN>())
@@ -394,8 +400,8 @@ fn run_third<
                     sum = sum.wrapping_add(a.wrapping_add(b) as i64 * e[j] as i64);
                     diff = diff.wrapping_add(a.wrapping_sub(b) as i64 * f[j] as i64);
                 }
-                let y1 = saturate((sum.wrapping_sub(diff) >> 32) as i32, &mut fl);
-                let y2 = saturate((sum.wrapping_add(diff) >> 32) as i32, &mut fl);
+                let y1 = saturate((sum.wrapping_sub(diff) >> 32) as i32, flags);
+                let y2 = saturate((sum.wrapping_add(diff) >> 32) as i32, flags);
                 d.copy_from_slice(&[y1 << SHIFT, y2 << SHIFT, w[P3] << (SHIFT - 1)]);
             }
         }
@@ -404,7 +410,6 @@ fn run_third<
     if let (Some(a), Some(b)) = (lower.get_mut(q..q + N), upper.get(q..q + N)) {
         a.copy_from_slice(b);
     }
-    *flags |= fl;
     *pos = q + N;
 }
 
