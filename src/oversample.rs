@@ -234,16 +234,31 @@ fn stage_pair<const K: usize, const W: usize, const SHIFT: u32>(
     [s << SHIFT, w[K] << (SHIFT - 1)]
 }
 
-/// The coefficient table behind an optimisation barrier. Without it the
-/// compiler folds the constants into the code (two instructions each on a
-/// Cortex-M4 instead of one load) and, where it hoists them out of a block,
-/// loses track of their being 32-bit values and emits a full 64 x 64-bit
-/// multiply instead of one multiply-accumulate. Only code quality depends on
-/// it, never the result.
-#[inline(always)]
-fn opaque<const K: usize>(c: &[i32; K]) -> &[i32; K] {
-    core::hint::black_box(c)
+/// The coefficient tables as the stages read them, through the reference
+/// each [`Oversampler`] holds. The compiler cannot see through a reference
+/// loaded from the oversampler, so it neither folds the coefficients into
+/// the code (two instructions each on a Cortex-M4 instead of one load) nor,
+/// where it hoists them out of a block, loses track of their being 32-bit
+/// values and emits a full 64 x 64-bit multiply instead of one
+/// multiply-accumulate. Only code quality depends on it, never the result.
+#[derive(Debug)]
+struct Tables {
+    s1: [i32; K1],
+    s2: [i32; K2],
+    s3: [i32; K3],
+    s4: [i32; K4],
+    sum: [i32; P3],
+    diff: [i32; P3],
 }
+
+static TABLES: Tables = Tables {
+    s1: STAGE1,
+    s2: STAGE2,
+    s3: STAGE3,
+    s4: STAGE4,
+    sum: THIRD_SUM,
+    diff: THIRD_DIFF,
+};
 
 /// Stage 1: take one input (Q1.31) into the ring and write the stage's two
 /// outputs for the newest window, scaled by `SHIFT` (see [`stage_pair`]).
@@ -256,7 +271,6 @@ fn run_head<const SHIFT: u32>(
     dst: &mut [i32; 2],
     flags: &mut u32,
 ) {
-    let c = opaque(c);
     let p = if *pos < W1 { *pos } else { 0 };
     *pos = p + 1;
     let x = x >> 1;
@@ -320,7 +334,6 @@ fn run_ring<
     flags: &mut u32,
 ) {
     const { assert!(R == 2 * S && S.is_multiple_of(N) && S + 1 >= W && LEN == W - 1 + N && M == 2 * N) };
-    let c = opaque(c);
     let q = batch_base::<S, N>(*pos);
     if let Some(line) = ring
         .get(q + S + 1 - W..)
@@ -385,7 +398,6 @@ fn run_third<
             R == 2 * S && S.is_multiple_of(N) && S + 1 >= W3X && LEN == W3X - 1 + N && M == 3 * N
         )
     };
-    let (e, f) = (opaque(e), opaque(f));
     let q = batch_base::<S, N>(*pos);
     if let Some(line) = ring
         .get(q + S + 1 - W3X..)
@@ -430,6 +442,8 @@ fn run_third<
 #[derive(Clone, Debug)]
 pub struct Oversampler {
     ratio: usize,
+    /// Always [`TABLES`]; see [`Tables`].
+    tables: &'static Tables,
     /// `THROUGH`, 1 to 4 half-band stages, `SIX` or `TWELVE`.
     plan: u8,
     /// Stage 1 delay line, written twice (at `pos` and `pos + W1`) so that
@@ -467,6 +481,7 @@ impl Oversampler {
         };
         Ok(Self {
             ratio: ratio as usize,
+            tables: &TABLES,
             plan,
             ring: [0; 2 * W1],
             pos: 0,
@@ -587,6 +602,7 @@ impl Oversampler {
         }
         let mut flags = 0u32;
         let plan = self.plan;
+        let tabs = self.tables;
         let (ring, pos) = (&mut self.ring, &mut self.pos);
         let (r2, p2) = (&mut self.ring2, &mut self.pos2);
         let (r3, p3) = (&mut self.ring3, &mut self.pos3);
@@ -599,20 +615,15 @@ impl Oversampler {
         const LB: usize = W3 - 1 + NB;
         if plan == 1 {
             if let Some(d) = out.first_chunk_mut::<2>() {
-                run_head::<2>(ring, pos, x, &STAGE1, d, &mut flags);
+                run_head::<2>(ring, pos, x, &tabs.s1, d, &mut flags);
             }
         } else if plan >= SIX {
             if let Some(t) = ring_tail::<ST, NT, { 2 * ST }>(rt, *pt) {
-                run_head::<1>(ring, pos, x, &STAGE1, t, &mut flags);
+                run_head::<1>(ring, pos, x, &tabs.s1, t, &mut flags);
                 if plan == SIX {
                     if let Some(d) = out.first_chunk_mut::<6>() {
                         run_third::<NT, ST, { 2 * ST }, LT, 6, 2>(
-                            rt,
-                            pt,
-                            &THIRD_SUM,
-                            &THIRD_DIFF,
-                            d,
-                            &mut flags,
+                            rt, pt, &tabs.sum, &tabs.diff, d, &mut flags,
                         );
                     }
                 } else if let (Some(b), Some(d)) = (
@@ -620,40 +631,35 @@ impl Oversampler {
                     out.first_chunk_mut::<12>(),
                 ) {
                     run_third::<NT, ST, { 2 * ST }, LT, 6, 1>(
-                        rt,
-                        pt,
-                        &THIRD_SUM,
-                        &THIRD_DIFF,
-                        b,
-                        &mut flags,
+                        rt, pt, &tabs.sum, &tabs.diff, b, &mut flags,
                     );
                     run_ring::<K3, W3, NB, SB, { 2 * S2 }, LB, 12, 2>(
-                        r2, p2, &STAGE3, d, &mut flags,
+                        r2, p2, &tabs.s3, d, &mut flags,
                     );
                 }
             }
         } else if let Some(t2) = ring_tail::<S2, N2, { 2 * S2 }>(r2, *p2) {
-            run_head::<1>(ring, pos, x, &STAGE1, t2, &mut flags);
+            run_head::<1>(ring, pos, x, &tabs.s1, t2, &mut flags);
             if plan == 2 {
                 if let Some(d) = out.first_chunk_mut::<4>() {
                     run_ring::<K2, W2, N2, S2, { 2 * S2 }, L2, 4, 2>(
-                        r2, p2, &STAGE2, d, &mut flags,
+                        r2, p2, &tabs.s2, d, &mut flags,
                     );
                 }
             } else if let Some(t3) = ring_tail::<S3, N3, { 2 * S3 }>(r3, *p3) {
-                run_ring::<K2, W2, N2, S2, { 2 * S2 }, L2, 4, 1>(r2, p2, &STAGE2, t3, &mut flags);
+                run_ring::<K2, W2, N2, S2, { 2 * S2 }, L2, 4, 1>(r2, p2, &tabs.s2, t3, &mut flags);
                 if plan == 3 {
                     if let Some(d) = out.first_chunk_mut::<8>() {
                         run_ring::<K3, W3, N3, S3, { 2 * S3 }, L3, 8, 2>(
-                            r3, p3, &STAGE3, d, &mut flags,
+                            r3, p3, &tabs.s3, d, &mut flags,
                         );
                     }
                 } else if let Some(t4) = ring_tail::<S4, N4, { 2 * S4 }>(r4, *p4) {
                     run_ring::<K3, W3, N3, S3, { 2 * S3 }, L3, 8, 1>(
-                        r3, p3, &STAGE3, t4, &mut flags,
+                        r3, p3, &tabs.s3, t4, &mut flags,
                     );
                     run_ring::<K4, W4, N4, S4, { 2 * S4 }, L4, 16, 2>(
-                        r4, p4, &STAGE4, out, &mut flags,
+                        r4, p4, &tabs.s4, out, &mut flags,
                     );
                 }
             }
