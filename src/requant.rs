@@ -328,7 +328,10 @@ impl Requantiser {
     /// The input clamp, counted.
     #[inline(always)]
     fn clamp_input(in_low: i32, in_high: i32, v: i32, counts: &mut ClampCounts) -> i32 {
-        if v < in_low {
+        // One unsigned compare for the usual case (in_low <= in_high).
+        if (v.wrapping_sub(in_low) as u32) <= (in_high.wrapping_sub(in_low) as u32) {
+            v
+        } else if v < in_low {
             counts.low = counts.low.wrapping_add(1);
             in_low
         } else if v > in_high {
