@@ -44,13 +44,16 @@
 //!
 //! Measured on an emulated Cortex-M4 (QEMU `mps2-an386`, `-icount
 //! shift=0`, release build with fat LTO, random input, the call from a
-//! sample loop included), instructions per update: 113.5 at 2x, 87 at 4x,
-//! 75 at 6x, 63 at 8x, 55.5 at 12x, 46 at 16x (227, 348, 449, 504, 666 and
-//! 735 per input sample). A multiply-accumulate costs five instructions in
-//! the long first stage (two data loads, the pre-add, the coefficient load,
-//! `SMLAL`); the short later stages add per-output work (saturation, flag,
-//! two stores) and register spills, about 9 instructions a
-//! multiply-accumulate.
+//! sample loop included; `oversample-x16` in `benches/cortex-m4`): 40.4
+//! instructions per update at 16x (646 per input sample). Before the
+//! clamp was recorded by a branch (see `saturate`) the counts were 113.5
+//! at 2x, 87 at 4x, 75 at 6x, 63 at 8x, 55.5 at 12x and 46 at 16x; the
+//! other ratios have not been measured since. A multiply-accumulate costs
+//! five instructions in the long first stage (two data loads, the pre-add,
+//! the coefficient load, `SMLAL`); the short later stages add per-output
+//! work (saturation, a compare and branch for the clamp count, two stores)
+//! and stack traffic for window samples shared by neighbouring outputs,
+//! about 7.5 instructions a multiply-accumulate.
 //!
 //! # Arithmetic (bit-exact, integer only)
 //! - Input Q1.31. Delay lines hold Q2.30 (one guard bit), so the pre-add of
