@@ -65,14 +65,15 @@ pub struct LegPair {
 
 impl LegPair {
     /// A pair for a bridge whose high counts must lie in `[low, high]`
-    /// ticks, with `edge_b` a solver configured like leg A's.
+    /// ticks, with `edge_b` a solver configured like leg A's. An empty
+    /// range (`low > high`) is taken as `[low, low]`.
     pub fn new(edge_b: EdgeSolver, top: u32, low: u32, high: u32) -> Self {
         Self {
             edge_b,
             top_q16: (top as i32) << FRAC_BITS,
             top: top as i32,
             low: low as i32,
-            high: high as i32,
+            high: high.max(low) as i32,
             e1: 0,
             e2: 0,
             counts: ClampCounts::default(),
@@ -128,7 +129,10 @@ impl LegPair {
 
     #[inline(always)]
     fn clamp(&mut self, c: i32) -> u32 {
-        if c < self.low {
+        // One unsigned compare for the usual case (low <= high).
+        if (c.wrapping_sub(self.low) as u32) <= (self.high.wrapping_sub(self.low) as u32) {
+            c as u32
+        } else if c < self.low {
             self.counts.low = self.counts.low.wrapping_add(1);
             self.low as u32
         } else if c > self.high {

@@ -483,7 +483,9 @@ fn kernel<const M: usize, const IIR: bool, const SCALED: bool>(
     };
     let ud = u + dith;
     let mut q = (ud + HALF) >> FRAC_BITS;
-    if q < q_low {
+    // One unsigned compare for the usual case (q_low <= q_high).
+    if (q.wrapping_sub(q_low) as u32) <= (q_high.wrapping_sub(q_low) as u32) {
+    } else if q < q_low {
         *overload = overload.wrapping_add(1);
         q = q_low;
     } else if q > q_high {
