@@ -174,6 +174,7 @@ impl<const CH: usize> Modulator<CH> {
                     timer.top(),
                     low,
                     high,
+                    timer.update() == crate::timer::UpdateScheme::Double,
                 )),
                 false => None,
             },
@@ -202,6 +203,13 @@ impl<const CH: usize> Modulator<CH> {
     /// The validated bridge mapper.
     pub const fn bridge(&self) -> &Bridge {
         &self.bridge
+    }
+
+    /// Largest modulation |x| (fraction of full scale) that passes without
+    /// clamping: the bridge's range narrowed by the noise shaper's headroom
+    /// (and, for a 3-level natural leg pair, its margin).
+    pub fn max_modulation(&self) -> f32 {
+        self.channels[0].quant.max_modulation()
     }
 
     /// Updates made from each input frame (the oversampling ratio).

@@ -31,10 +31,14 @@
 use std::vec::Vec;
 
 use crate::bridge::{BridgeKind, BridgeSpec};
+use crate::edge::Sampling;
 use crate::error::ConfigError;
 use crate::modulator::{Modulator, ModulatorSpec};
 use crate::requant::{Requantiser, ShaperSpec};
 use crate::timer::{Edge, Timer, TimerSpec, UpdateScheme, MAX_TOP};
+
+/// -1 dBFS as a modulation: a plan must pass it unclamped.
+pub const MINUS_1_DBFS: f64 = 0.891_250_938_133_745_6;
 
 /// Oversampling ratios the oversampler supports.
 pub const RATIOS: [u32; 7] = [1, 2, 4, 6, 8, 12, 16];
@@ -88,9 +92,10 @@ pub struct Candidate {
 }
 
 impl Candidate {
-    /// Whether the prediction reaches `target_db`.
+    /// Whether the prediction reaches `target_db` and a -1 dBFS tone (the
+    /// AES17 level) passes without clamping.
     pub fn meets(&self, target_db: f64) -> bool {
-        self.predicted_snr_db >= target_db
+        self.predicted_snr_db >= target_db && self.max_modulation >= MINUS_1_DBFS
     }
 
     /// The modulator spec of this candidate (uniform sampling, ideal
@@ -226,6 +231,16 @@ pub fn plan(spec: &PlanSpec) -> Result<Vec<Candidate>, ConfigError> {
                     let Ok(q) = Requantiser::try_new(&timer, 0, top, shaper(order)) else {
                         continue;
                     };
+                    // The range the whole chain leaves (natural sampling:
+                    // a 3-level leg pair keeps a margin too).
+                    let mspec = ModulatorSpec {
+                        sampling: Sampling::NATURAL,
+                        shaper: shaper(order),
+                        ..mspec
+                    };
+                    let Ok(m) = Modulator::<1>::try_new(mspec) else {
+                        continue;
+                    };
                     let c = Candidate {
                         clock_hz: clock,
                         carrier_hz: carrier,
@@ -236,7 +251,7 @@ pub fn plan(spec: &PlanSpec) -> Result<Vec<Candidate>, ConfigError> {
                         top,
                         osr: timer.update_rate_hz() / (2.0 * spec.band_hz),
                         order,
-                        max_modulation: q.max_modulation() as f64,
+                        max_modulation: m.max_modulation() as f64,
                         predicted_snr_db: predicted_snr_db(&timer, &q, spec.band_hz),
                     };
                     let better = best.is_none_or(|b| c.predicted_snr_db > b.predicted_snr_db);
@@ -317,7 +332,9 @@ pub fn table(spec: &PlanSpec, candidates: &[Candidate], rows: usize) -> std::str
             c.order,
             c.max_modulation,
             c.predicted_snr_db,
-            if c.meets(spec.target_snr_db) {
+            if c.max_modulation < MINUS_1_DBFS {
+                "  (clamps a -1 dBFS tone)"
+            } else if c.meets(spec.target_snr_db) {
                 ""
             } else {
                 "  (short of target)"
