@@ -537,23 +537,17 @@ fn run(a: &MeasureArgs) -> Result<(), String> {
 }
 
 fn main() -> ExitCode {
-    let cli = Cli::parse();
-    match cli.cmd {
-        Cmd::Measure(a) => match run(&a) {
-            Ok(()) => ExitCode::SUCCESS,
-            Err(e) => {
-                eprintln!("ticktone measure: {e}");
-                eprintln!("{SAFETY_CAUTION}");
-                ExitCode::from(2)
-            }
-        },
-        Cmd::Plan(a) => match run_plan(&a) {
-            Ok(()) => ExitCode::SUCCESS,
-            Err(e) => {
-                eprintln!("ticktone plan: {e}");
-                eprintln!("{SAFETY_CAUTION}");
-                ExitCode::from(2)
-            }
-        },
+    let (name, result) = match Cli::parse().cmd {
+        Cmd::Measure(a) => ("measure", run(&a)),
+        Cmd::Plan(a) => ("plan", run_plan(&a)),
+    };
+    match result {
+        Ok(()) => ExitCode::SUCCESS,
+        Err(e) => {
+            // Configuration refused: say why, and the caution, on stderr.
+            eprintln!("ticktone {name}: {e}");
+            eprintln!("{SAFETY_CAUTION}");
+            ExitCode::from(2)
+        }
     }
 }
