@@ -504,23 +504,18 @@ fn butterworth_poles(den: &mut Poly, n: u8, w: f64, sign: f64) {
 
 /// `cos x` for |x| <= 4 by its Taylor series (terms until below 1e-18).
 pub(crate) fn cos(x: f64) -> f64 {
-    let x2 = x * x;
-    let (mut term, mut sum, mut k) = (1.0f64, 1.0f64, 0.0f64);
-    while k < 60.0 {
-        term *= -x2 / ((k + 1.0) * (k + 2.0));
-        sum += term;
-        k += 2.0;
-        if term.abs() < 1e-18 {
-            break;
-        }
-    }
-    sum
+    alternating_series(1.0, x * x, 0.0)
 }
 
 /// `sin x` for |x| <= 4 by its Taylor series.
 pub(crate) fn sin(x: f64) -> f64 {
-    let x2 = x * x;
-    let (mut term, mut sum, mut k) = (x, x, 1.0f64);
+    alternating_series(x, x * x, 1.0)
+}
+
+/// `first - first x^2 / ((k+1)(k+2)) + ...`: the cosine series from
+/// `(1, k = 0)`, the sine series from `(x, k = 1)`.
+fn alternating_series(first: f64, x2: f64, k0: f64) -> f64 {
+    let (mut term, mut sum, mut k) = (first, first, k0);
     while k < 60.0 {
         term *= -x2 / ((k + 1.0) * (k + 2.0));
         sum += term;
