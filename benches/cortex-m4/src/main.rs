@@ -36,6 +36,7 @@ use panic_semihosting as _;
 
 use ticktone::bridge::Bridge;
 use ticktone::edge::{EdgeSolver, Sampling};
+use ticktone::leg_pair::LegPair;
 use ticktone::oversample::{Oversampler, MAX_RATIO};
 use ticktone::requant::{Requantiser, ShaperSpec};
 use ticktone::timer::Timer;
@@ -128,6 +129,52 @@ fn tt_loop_requant(q: &mut Requantiser, vs: &[i32]) {
 
 #[no_mangle]
 #[inline(never)]
+fn tt_block_requant(q: &mut Requantiser, vs: &[i32]) {
+    for block in vs.chunks_exact(MAX_RATIO) {
+        let mut b = [0i32; MAX_RATIO];
+        b.copy_from_slice(block);
+        q.process(&mut b);
+        black_box(&mut b);
+    }
+}
+
+#[no_mangle]
+#[inline(never)]
+fn tt_block_edge(e: &mut EdgeSolver, xs: &[i32]) {
+    for block in xs.chunks_exact(MAX_RATIO) {
+        let mut b = [0i32; MAX_RATIO];
+        b.copy_from_slice(block);
+        e.process(&mut b);
+        black_box(&mut b);
+    }
+}
+
+#[no_mangle]
+#[inline(never)]
+fn tt_block_pair(p: &mut LegPair, e: &mut EdgeSolver, xs: &[i32]) {
+    for block in xs.chunks_exact(MAX_RATIO) {
+        let mut a = [0i32; MAX_RATIO];
+        let mut b = [0i32; MAX_RATIO];
+        a.copy_from_slice(block);
+        p.split(e, &mut a, &mut b);
+        black_box((&mut a, &mut b));
+    }
+}
+
+/// [`tt_block_requant`] and the other block loops with an empty body: the
+/// copy into the block and the loop overhead.
+#[no_mangle]
+#[inline(never)]
+fn tt_block_empty(xs: &[i32]) {
+    for block in xs.chunks_exact(MAX_RATIO) {
+        let mut b = [0i32; MAX_RATIO];
+        b.copy_from_slice(block);
+        black_box(&mut b);
+    }
+}
+
+#[no_mangle]
+#[inline(never)]
 fn tt_loop_bridge(b: &Bridge, cs: &[i32]) {
     for &c in cs {
         black_box(b.words(c as u32));
@@ -171,11 +218,16 @@ fn calibrate() {
 
 /// Time `body` over `xs` repeated until [`TARGET_UPDATES`], net of the
 /// empty loop.
-fn time_stage(name: &str, xs: &[i32], mut body: impl FnMut(&[i32])) {
+fn time_stage(name: &str, xs: &[i32], body: impl FnMut(&[i32])) {
+    time_against(name, xs, tt_loop_empty, body);
+}
+
+/// Time `body` over `xs` as [`time_stage`] does, net of `empty`.
+fn time_against(name: &str, xs: &[i32], empty: fn(&[i32]), mut body: impl FnMut(&[i32])) {
     let reps = TARGET_UPDATES.div_ceil(xs.len());
     let empty = instructions(|| {
         for _ in 0..reps {
-            tt_loop_empty(xs);
+            empty(xs);
         }
     });
     let full = instructions(|| {
@@ -236,6 +288,35 @@ fn stages() {
         let mut q = Requantiser::try_new(&timer, low, high, ShaperSpec::new(order)).unwrap();
         time_stage(name, &hs, |vs| tt_loop_requant(&mut q, vs));
     }
+
+    // The same stages on blocks of 16 updates, as the modulator calls them
+    // with 16x oversampling (net of copying each block in).
+    for (name, spec) in [
+        ("block-requant-round", ShaperSpec::ROUND),
+        ("block-requant-ns3", ShaperSpec::new(3)),
+        ("block-requant-ns5", ShaperSpec::new(5)),
+    ] {
+        let mut q = Requantiser::try_new(&timer, low, high, spec).unwrap();
+        time_against(name, &hs, tt_block_empty, |vs| tt_block_requant(&mut q, vs));
+    }
+    for (name, sampling) in [
+        ("block-edge-uniform", Sampling::Uniform),
+        ("block-edge-natural-cubic1", Sampling::NATURAL),
+    ] {
+        let mut e = EdgeSolver::try_new(&timer, sampling).unwrap();
+        time_against(name, &xs, tt_block_empty, |xs| tt_block_edge(&mut e, xs));
+    }
+    let mut e = EdgeSolver::try_new(&timer, Sampling::NATURAL).unwrap();
+    let mut pair = LegPair::new(
+        EdgeSolver::try_new(&timer, Sampling::NATURAL).unwrap(),
+        timer.top(),
+        low,
+        high,
+        true,
+    );
+    time_against("block-pair-natural-cubic1", &xs, tt_block_empty, |xs| {
+        tt_block_pair(&mut pair, &mut e, xs)
+    });
 
     // Rounded high counts for the bridge mapper.
     let mut q = Requantiser::try_new(&timer, low, high, ShaperSpec::ROUND).unwrap();
