@@ -320,6 +320,83 @@ impl Bridge {
     }
 }
 
+/// The compare words of one update as an affine map of the leg counts,
+/// `word[j] = offset[j] + slope[j] * leg(j)` (wrapping `u32`, `slope` being
+/// `1` or `u32::MAX` for -1), for block loops that want no branch an
+/// update: [`Bridge::words_legs`] and [`Bridge::words`] written as
+/// constants worked out once. Leg B feeds word `j` when `2 j >= N > 1`
+/// (the second of two words, the last two of four).
+#[derive(Clone, Copy, Debug, PartialEq, Eq)]
+pub struct WordMap<const N: usize> {
+    /// Per word: constant part.
+    pub offset: [u32; N],
+    /// Per word: 1 or -1 (as `u32::MAX`).
+    pub slope: [u32; N],
+}
+
+impl<const N: usize> WordMap<N> {
+    /// Whether word `j` is leg B's.
+    #[inline(always)]
+    pub const fn from_leg_b(j: usize) -> bool {
+        N > 1 && 2 * j >= N
+    }
+
+    /// The words of leg counts `a` and `b`.
+    #[inline(always)]
+    pub fn words(&self, a: u32, b: u32) -> [u32; N] {
+        core::array::from_fn(|j| {
+            let leg = if Self::from_leg_b(j) { b } else { a };
+            self.offset[j].wrapping_add(self.slope[j].wrapping_mul(leg))
+        })
+    }
+
+    /// The words of one high count `c` (leg B derived from it), with the
+    /// map from [`Bridge::count_map`].
+    #[inline(always)]
+    pub fn words_of(&self, c: u32) -> [u32; N] {
+        core::array::from_fn(|j| self.offset[j].wrapping_add(self.slope[j].wrapping_mul(c)))
+    }
+}
+
+impl Bridge {
+    /// [`Bridge::words_legs`] as a [`WordMap`] of `(leg_a, leg_b)`, `N`
+    /// being [`Bridge::words_per_update`] (`None` otherwise).
+    pub fn leg_map<const N: usize>(&self) -> Option<WordMap<N>> {
+        if N != self.words_per_update() {
+            return None;
+        }
+        let (base, slope) = if self.mirrored {
+            (self.top, u32::MAX)
+        } else {
+            (0, 1)
+        };
+        let (below, above) = (self.dt_below.wrapping_neg(), self.dt_above);
+        let k: [u32; MAX_WORDS] = match (self.spec.form, self.spec.kind) {
+            (DeadTimeForm::Generator, _) => [0; MAX_WORDS],
+            (DeadTimeForm::SeparateCompares, BridgeKind::Full2) => [below, above, above, below],
+            (DeadTimeForm::SeparateCompares, _) => [below, above, below, above],
+        };
+        Some(WordMap {
+            offset: core::array::from_fn(|j| base.wrapping_add(k[j])),
+            slope: [slope; N],
+        })
+    }
+
+    /// [`Bridge::words`] as a [`WordMap`] of the one high count `c`: for a
+    /// 3-level bridge leg B's words take `top - c`.
+    pub fn count_map<const N: usize>(&self) -> Option<WordMap<N>> {
+        let mut m = self.leg_map::<N>()?;
+        if self.spec.kind == BridgeKind::Full3 {
+            for j in (0..N).filter(|&j| WordMap::<N>::from_leg_b(j)) {
+                // offset + slope (top - c) = (offset + slope top) - slope c
+                m.offset[j] = m.offset[j].wrapping_add(m.slope[j].wrapping_mul(self.top));
+                m.slope[j] = m.slope[j].wrapping_neg();
+            }
+        }
+        Some(m)
+    }
+}
+
 #[cfg(test)]
 mod tests {
     use super::*;
@@ -346,6 +423,53 @@ mod tests {
         let b = Bridge::try_new(s, &t).unwrap();
         assert_eq!(b.high_count_range(), (7, 121));
         assert_eq!(b.words(100)[..4], [99, 102, 27, 30]);
+    }
+
+    #[test]
+    fn word_maps_agree_with_words() {
+        // The affine maps are the same function as `words`/`words_legs`
+        // (definition), for every kind, form and edge.
+        for edge in [Edge::Trailing, Edge::Leading, Edge::Double] {
+            let t = Timer::try_new(TimerSpec::new(98.304e6, 384e3).with_edge(edge)).unwrap();
+            for kind in [BridgeKind::Half, BridgeKind::Full2, BridgeKind::Full3] {
+                for form in [DeadTimeForm::Generator, DeadTimeForm::SeparateCompares] {
+                    let mut s = BridgeSpec::ideal(kind);
+                    s.form = form;
+                    s.dead_time_ticks = 3;
+                    let Ok(b) = Bridge::try_new(s, &t) else {
+                        continue;
+                    };
+                    let n = b.words_per_update();
+                    let (lo, hi) = b.high_count_range();
+                    for c in lo..=hi {
+                        let w = b.words(c);
+                        let partner = if kind == BridgeKind::Full3 {
+                            hi + lo - c
+                        } else {
+                            c
+                        };
+                        let wl = b.words_legs(c, partner);
+                        match n {
+                            1 => {
+                                assert_eq!(b.count_map::<1>().unwrap().words_of(c)[..], w[..1]);
+                                assert_eq!(b.leg_map::<1>().unwrap().words(c, c)[..], w[..1]);
+                            }
+                            2 => {
+                                assert_eq!(b.count_map::<2>().unwrap().words_of(c)[..], w[..2]);
+                                let m = b.leg_map::<2>().unwrap();
+                                assert_eq!(m.words(c, partner)[..], wl[..2]);
+                            }
+                            _ => {
+                                assert_eq!(b.count_map::<4>().unwrap().words_of(c)[..], w[..]);
+                                let m = b.leg_map::<4>().unwrap();
+                                assert_eq!(m.words(c, partner)[..], wl[..]);
+                            }
+                        }
+                    }
+                    assert!(b.leg_map::<3>().is_none());
+                }
+            }
+        }
     }
 
     #[test]

@@ -283,6 +283,13 @@ impl<const CH: usize> Modulator<CH> {
         // common-mode parts.
         let mut fine = [[0i32; MAX_RATIO]; CH];
         let mut common = [[0i32; MAX_RATIO]; CH];
+        // The bridge's words as affine maps, worked out once a call (`N` is
+        // the bridge's word count, so they exist).
+        let (Some(count_map), Some(leg_map)) =
+            (self.bridge.count_map::<N>(), self.bridge.leg_map::<N>())
+        else {
+            return 0;
+        };
         let mut frames = 0;
         for (frame, words) in input.chunks_exact(CH).zip(out.chunks_exact_mut(per_frame)) {
             // Stage by stage over the block, one channel at a time.
@@ -305,22 +312,31 @@ impl<const CH: usize> Modulator<CH> {
                 }
                 channel.quant.process(&mut f[..ratio]);
             }
-            // Words in DMA order: update by update, channel by channel.
+            // Words in DMA order: update by update, channel by channel;
+            // written channel by channel so that a channel's leg-pair state
+            // and word map stay in registers for the block.
             let (slots, _) = words.as_chunks_mut::<N>();
-            let mut slots = slots.iter_mut();
-            for u in 0..ratio {
-                for ((channel, f), w) in self.channels.iter_mut().zip(&fine).zip(&common) {
-                    let Some(dst) = slots.next() else { break };
-                    let c = f[u] as u32;
-                    let v = match &mut channel.pair {
-                        None => self.bridge.words(c),
-                        Some(pair) => {
-                            let (a, b) = pair.legs(c, w[u]);
-                            self.bridge.words_legs(a, b)
+            let (groups, _) = slots.as_chunks_mut::<CH>();
+            for (ch, ((channel, f), w)) in
+                self.channels.iter_mut().zip(&fine).zip(&common).enumerate()
+            {
+                match &mut channel.pair {
+                    None => {
+                        for (group, &c) in groups.iter_mut().zip(f) {
+                            let v = count_map.words_of(c as u32);
+                            for (d, &v) in group[ch].iter_mut().zip(&v) {
+                                *d = W::from_ticks(v);
+                            }
                         }
-                    };
-                    for (d, &v) in dst.iter_mut().zip(&v) {
-                        *d = W::from_ticks(v);
+                    }
+                    Some(pair) => {
+                        for ((group, &c), &w) in groups.iter_mut().zip(f).zip(w) {
+                            let (a, b) = pair.legs(c as u32, w);
+                            let v = leg_map.words(a, b);
+                            for (d, &v) in group[ch].iter_mut().zip(&v) {
+                                *d = W::from_ticks(v);
+                            }
+                        }
                     }
                 }
             }
