@@ -406,11 +406,21 @@ impl Requantiser {
     #[inline(always)]
     fn run<const M: usize, const IIR: bool>(&mut self, block: &mut [i32]) {
         // No state, nothing to scale (M is a constant: no test left).
+        // A filter whose state does not fit the scaled form (large
+        // sum|g|, not met by the shapers `ShaperSpec::new` gives) takes the
+        // per-value path, the same arithmetic: a kernel of its own would
+        // double this function's code (about 25 KB on a Cortex-M4) for a
+        // case that is rare.
         match (self.dither, M > 0 && self.scaled) {
             (true, true) => self.run_d::<M, IIR, true, true>(block),
-            (true, false) => self.run_d::<M, IIR, true, false>(block),
             (false, true) => self.run_d::<M, IIR, false, true>(block),
-            (false, false) => self.run_d::<M, IIR, false, false>(block),
+            (true, false) if M == 0 => self.run_d::<M, IIR, true, false>(block),
+            (false, false) if M == 0 => self.run_d::<M, IIR, false, false>(block),
+            (_, false) => {
+                for h in block.iter_mut() {
+                    *h = self.step::<M, IIR>(*h).0 as i32;
+                }
+            }
         }
     }
 
@@ -544,6 +554,33 @@ mod tests {
                 let spec = ShaperSpec::new(order).with_dither(dither);
                 let q = Requantiser::try_new(&t, 2, 126, spec).unwrap();
                 assert!(q.scaled, "order {order} dither {dither}");
+            }
+        }
+    }
+
+    #[test]
+    fn unscaled_block_path_matches_quantise() {
+        // A filter that cannot hold its state scaled takes the per-value
+        // path in `process`: the same words as `quantise` one by one
+        // (definition). Forced here on shapers that could be scaled.
+        let t = Timer::try_new(crate::timer::TimerSpec::new(98.304e6, 384e3)).unwrap();
+        for order in [2, 5] {
+            let spec = ShaperSpec::new(order).with_dither(true);
+            let mut block = Requantiser::try_new(&t, 2, 126, spec).unwrap();
+            block.scaled = false;
+            let mut one = block.clone();
+            let mut x = 0x1234_5678u32;
+            let mut buf = [0i32; 16];
+            for _ in 0..64 {
+                for h in buf.iter_mut() {
+                    x ^= x << 13;
+                    x ^= x >> 17;
+                    x ^= x << 5;
+                    *h = (20 << FRAC_BITS) + (x % (90 << FRAC_BITS)) as i32;
+                }
+                let want: [i32; 16] = core::array::from_fn(|i| one.quantise(buf[i]) as i32);
+                block.process(&mut buf);
+                assert_eq!(buf, want, "order {order}");
             }
         }
     }
