@@ -75,8 +75,9 @@
 //! - Output Q1.31; computed samples have their two lowest bits zero.
 //!
 //! No floating point, no allocation, no panic path: windows are fixed-size
-//! arrays taken at offsets the compiler can bound. State: about 0.93 KB a
-//! channel on a 32-bit target (232 words).
+//! arrays taken at offsets the compiler can bound. State: about 1.5 KB a
+//! channel on a 32-bit target (374 words; stage 1's delay line holds each
+//! input twice, as sample pairs, see `run_head`).
 
 use crate::error::ConfigError;
 
@@ -201,26 +202,59 @@ fn odd_phase<const K: usize, const W: usize>(w: &[i32; W], c: &[i32; K]) -> i32 
     (acc >> 32) as i32
 }
 
-/// Accumulate the listed coefficient pairs, written out one by one so that
-/// the long first stage compiles to straight-line loads and
-/// multiply-accumulates whatever the optimiser's loop-unrolling budget.
-macro_rules! pairs_unrolled {
-    ($acc:ident, $w:ident, $c:ident, $k:expr; $($j:literal)*) => {
+/// Two consecutive samples or coefficients, aligned to 8 bytes so that one
+/// paired load (`LDRD` on a Cortex-M4) reads both.
+#[derive(Clone, Copy, Debug, Default, PartialEq, Eq)]
+#[repr(C, align(8))]
+struct Duo([i32; 2]);
+
+/// Stage 1's sample pairs a window needs: `line[k] = (w[k], w[k+1])` of
+/// the window `w` of the newest `W1` inputs.
+const L1: usize = W1 - 1;
+
+/// Stage 1's coefficients `2m` and `2m + 1` as duos, `m = 0..K1/2`, each
+/// followed by an unused duo. The gap matters to the compiler only: it
+/// pairs two adjacent loads into one `LDRD` where they form a run of two,
+/// but leaves a long run of adjacent loads (a dense table) unpaired.
+const fn head_duos() -> [[Duo; 2]; K1 / 2] {
+    let mut d = [[Duo([0; 2]); 2]; K1 / 2];
+    let mut m = 0;
+    while m < K1 / 2 {
+        d[m][0] = Duo([STAGE1[2 * m], STAGE1[2 * m + 1]]);
+        m += 1;
+    }
+    d
+}
+
+/// Coefficient pairs `j = 2m` and `j + 1` of stage 1, written out twin by
+/// twin so that the long first stage compiles to straight-line paired
+/// loads and multiply-accumulates whatever the optimiser's loop-unrolling
+/// budget. The window words of the twin, `w[K-2-j], w[K-1-j]` and
+/// `w[K+j], w[K+1+j]`, are the duos `line[K-2-j]` and `line[K+j]`.
+macro_rules! twins_unrolled {
+    ($acc:ident, $line:ident, $c:ident; $($m:literal)*) => {
         $(
-            let pair = $w[$k - 1 - $j].wrapping_add($w[$k + $j]);
-            $acc = $acc.wrapping_add(pair as i64 * $c[$j] as i64);
+            let Duo([c0, c1]) = $c[$m][0];
+            let Duo([lo0, lo1]) = $line[K1 - 2 - 2 * $m];
+            let Duo([hi0, hi1]) = $line[K1 + 2 * $m];
+            // Q2.30 values within [-1, 1): each sum fits in i32.
+            $acc = $acc.wrapping_add(lo1.wrapping_add(hi0) as i64 * c0 as i64);
+            $acc = $acc.wrapping_add(lo0.wrapping_add(hi1) as i64 * c1 as i64);
         )*
     };
 }
 
-/// [`odd_phase`] for stage 1, unrolled.
+/// [`odd_phase`] for stage 1, unrolled, from the window's sample pairs
+/// (`line`, see [`L1`]); `c` the coefficient duos, `last` the last
+/// coefficient.
 #[inline(always)]
-fn odd_phase_head(w: &[i32; W1], c: &[i32; K1]) -> i32 {
+fn odd_phase_head(line: &[Duo; L1], c: &[[Duo; 2]; K1 / 2], last: i32) -> i32 {
     const { assert!(K1 == 35) };
     let mut acc = 0i64;
-    pairs_unrolled!(acc, w, c, K1;
-        0 1 2 3 4 5 6 7 8 9 10 11 12 13 14 15 16 17 18 19
-        20 21 22 23 24 25 26 27 28 29 30 31 32 33 34);
+    twins_unrolled!(acc, line, c;
+        0 1 2 3 4 5 6 7 8 9 10 11 12 13 14 15 16);
+    let pair = line[0].0[0].wrapping_add(line[L1 - 1].0[1]);
+    acc = acc.wrapping_add(pair as i64 * last as i64);
     (acc >> 32) as i32
 }
 
@@ -246,7 +280,8 @@ fn stage_pair<const K: usize, const W: usize, const SHIFT: u32>(
 /// multiply-accumulate. Only code quality depends on it, never the result.
 #[derive(Debug)]
 struct Tables {
-    s1: [i32; K1],
+    s1: [[Duo; 2]; K1 / 2],
+    s1_last: i32,
     s2: [i32; K2],
     s3: [i32; K3],
     s4: [i32; K4],
@@ -255,7 +290,8 @@ struct Tables {
 }
 
 static TABLES: Tables = Tables {
-    s1: STAGE1,
+    s1: head_duos(),
+    s1_last: STAGE1[K1 - 1],
     s2: STAGE2,
     s3: STAGE3,
     s4: STAGE4,
@@ -265,23 +301,33 @@ static TABLES: Tables = Tables {
 
 /// Stage 1: take one input (Q1.31) into the ring and write the stage's two
 /// outputs for the newest window, scaled by `SHIFT` (see [`stage_pair`]).
+///
+/// The ring holds, for each input `x[n]`, the duo `(x[n-1], x[n])`, twice
+/// (at `p` and `p + W1`) so that the newest `L1` duos are always
+/// contiguous: every symmetric twin of the window is then two aligned duo
+/// loads.
 #[inline(never)]
 fn run_head<const SHIFT: u32>(
-    ring: &mut [i32; 2 * W1],
+    ring: &mut [Duo; 2 * W1],
     pos: &mut usize,
     x: i32,
-    c: &[i32; K1],
+    tabs: &Tables,
     dst: &mut [i32; 2],
     flags: &mut u32,
 ) {
     let p = if *pos < W1 { *pos } else { 0 };
     *pos = p + 1;
     let x = x >> 1;
-    ring[p] = x;
-    ring[p + W1] = x;
-    if let Some(w) = ring.get(p + 1..).and_then(|s| s.first_chunk::<W1>()) {
-        let y = saturate(odd_phase_head(w, c), flags);
-        *dst = [y << SHIFT, w[K1] << (SHIFT - 1)];
+    // The previous input: the second word of the previous duo.
+    let prev = ring[p + W1 - 1].0[1];
+    ring[p] = Duo([prev, x]);
+    ring[p + W1] = Duo([prev, x]);
+    if let Some(line) = ring
+        .get(p + W1 + 1 - L1..)
+        .and_then(|s| s.first_chunk::<L1>())
+    {
+        let y = saturate(odd_phase_head(line, &tabs.s1, tabs.s1_last), flags);
+        *dst = [y << SHIFT, line[K1].0[0] << (SHIFT - 1)];
     }
 }
 
@@ -449,9 +495,8 @@ pub struct Oversampler {
     tables: &'static Tables,
     /// `THROUGH`, 1 to 4 half-band stages, `SIX` or `TWELVE`.
     plan: u8,
-    /// Stage 1 delay line, written twice (at `pos` and `pos + W1`) so that
-    /// the newest `W1` inputs are always contiguous.
-    ring: [i32; 2 * W1],
+    /// Stage 1 delay line of sample pairs (see [`run_head`]).
+    ring: [Duo; 2 * W1],
     pos: usize,
     ring2: [i32; 2 * S2],
     pos2: usize,
@@ -486,7 +531,7 @@ impl Oversampler {
             ratio: ratio as usize,
             tables: &TABLES,
             plan,
-            ring: [0; 2 * W1],
+            ring: [Duo([0; 2]); 2 * W1],
             pos: 0,
             ring2: [0; 2 * S2],
             pos2: 0,
@@ -566,7 +611,7 @@ impl Oversampler {
 
     /// Clear the filters' history (silence), keeping the ratio.
     pub fn reset(&mut self) {
-        self.ring = [0; 2 * W1];
+        self.ring = [Duo([0; 2]); 2 * W1];
         self.pos = 0;
         self.ring2 = [0; 2 * S2];
         self.pos2 = 0;
@@ -618,11 +663,11 @@ impl Oversampler {
         const LB: usize = W3 - 1 + NB;
         if plan == 1 {
             if let Some(d) = out.first_chunk_mut::<2>() {
-                run_head::<2>(ring, pos, x, &tabs.s1, d, &mut flags);
+                run_head::<2>(ring, pos, x, tabs, d, &mut flags);
             }
         } else if plan >= SIX {
             if let Some(t) = ring_tail::<ST, NT, { 2 * ST }>(rt, *pt) {
-                run_head::<1>(ring, pos, x, &tabs.s1, t, &mut flags);
+                run_head::<1>(ring, pos, x, tabs, t, &mut flags);
                 if plan == SIX {
                     if let Some(d) = out.first_chunk_mut::<6>() {
                         run_third::<NT, ST, { 2 * ST }, LT, 6, 2>(
@@ -642,7 +687,7 @@ impl Oversampler {
                 }
             }
         } else if let Some(t2) = ring_tail::<S2, N2, { 2 * S2 }>(r2, *p2) {
-            run_head::<1>(ring, pos, x, &tabs.s1, t2, &mut flags);
+            run_head::<1>(ring, pos, x, tabs, t2, &mut flags);
             if plan == 2 {
                 if let Some(d) = out.first_chunk_mut::<4>() {
                     run_ring::<K2, W2, N2, S2, { 2 * S2 }, L2, 4, 2>(
