@@ -188,20 +188,6 @@ const _: () = {
 const Q29_MIN: i32 = -(1 << 29);
 const Q29_MAX: i32 = (1 << 29) - 1;
 
-/// The computed (odd-phase) sample of a half-band stage from its window of
-/// `W = 2K` inputs (Q2.30, oldest first): the Q3.29 high word (floor).
-#[inline(always)]
-fn odd_phase<const K: usize, const W: usize>(w: &[i32; W], c: &[i32; K]) -> i32 {
-    const { assert!(W == 2 * K) };
-    let mut acc = 0i64;
-    for j in 0..K {
-        // Both Q2.30 values are within [-1, 1): the sum fits in i32.
-        let pair = w[K - 1 - j].wrapping_add(w[K + j]);
-        acc = acc.wrapping_add(pair as i64 * c[j] as i64);
-    }
-    (acc >> 32) as i32
-}
-
 /// Two consecutive samples or coefficients, aligned to 8 bytes so that one
 /// paired load (`LDRD` on a Cortex-M4) reads both.
 #[derive(Clone, Copy, Debug, Default, PartialEq, Eq)]
@@ -244,9 +230,11 @@ macro_rules! twins_unrolled {
     };
 }
 
-/// [`odd_phase`] for stage 1, unrolled, from the window's sample pairs
-/// (`line`, see [`L1`]); `c` the coefficient duos, `last` the last
-/// coefficient.
+/// The computed (odd-phase) sample of stage 1, `sum c[j] (w[K-1-j] +
+/// w[K+j])` over the window `w` of `W1` inputs (Q2.30, oldest first), as
+/// the Q3.29 high word (floor). Unrolled; reads the window's sample pairs
+/// (`line`, see [`L1`]), the coefficient duos `c` and the last coefficient
+/// `last`.
 #[inline(always)]
 fn odd_phase_head(line: &[Duo; L1], c: &[[Duo; 2]; K1 / 2], last: i32) -> i32 {
     const { assert!(K1 == 35) };
@@ -256,19 +244,6 @@ fn odd_phase_head(line: &[Duo; L1], c: &[[Duo; 2]; K1 / 2], last: i32) -> i32 {
     let pair = line[0].0[0].wrapping_add(line[L1 - 1].0[1]);
     acc = acc.wrapping_add(pair as i64 * last as i64);
     (acc >> 32) as i32
-}
-
-/// The two outputs of a stage for one window: the computed sample then the
-/// centre-tap copy, scaled by `SHIFT` (1: Q2.30 for the next stage; 2:
-/// Q1.31 out). Saturation is recorded in `flags`.
-#[inline(always)]
-fn stage_pair<const K: usize, const W: usize, const SHIFT: u32>(
-    w: &[i32; W],
-    c: &[i32; K],
-    flags: &mut u32,
-) -> [i32; 2] {
-    let s = saturate(odd_phase(w, c), flags);
-    [s << SHIFT, w[K] << (SHIFT - 1)]
 }
 
 /// The coefficient tables as the stages read them, through the reference
@@ -300,13 +275,14 @@ static TABLES: Tables = Tables {
 };
 
 /// Stage 1: take one input (Q1.31) into the ring and write the stage's two
-/// outputs for the newest window, scaled by `SHIFT` (see [`stage_pair`]).
+/// outputs for the newest window: the computed sample then the centre-tap
+/// copy, scaled by `SHIFT` (1: Q2.30 for the next stage; 2: Q1.31 out).
 ///
 /// The ring holds, for each input `x[n]`, the duo `(x[n-1], x[n])`, twice
 /// (at `p` and `p + W1`) so that the newest `L1` duos are always
 /// contiguous: every symmetric twin of the window is then two aligned duo
 /// loads.
-#[inline(never)]
+#[inline(always)]
 fn run_head<const SHIFT: u32>(
     ring: &mut [Duo; 2 * W1],
     pos: &mut usize,
@@ -362,10 +338,13 @@ fn ring_tail<const S: usize, const N: usize, const R: usize>(
 /// contiguous at `q + S + 1 - W .. q + S + N` and no history is moved; only
 /// the `N` new inputs are copied to their lower copies.
 ///
-/// Not inlined: each stage reads its inputs from memory, so the compiler
-/// keeps every product a 32 x 32 -> 64-bit multiply-accumulate instead of
-/// folding the previous stage's scaling into wider constants.
-#[inline(never)]
+/// The outputs are computed two at a time ([`output_pair`]), each pair
+/// behind a compiler fence so that it reads its inputs from memory: the
+/// compiler then neither keeps earlier values live across the pairs (and
+/// spills them) nor forwards the previous stage's stored outputs, which
+/// would let it fold that stage's scaling into wider constants and emit full
+/// 64 x 64-bit multiplies instead of 32 x 32 -> 64-bit multiply-accumulates.
+#[inline(always)]
 fn run_ring<
     const K: usize,
     const W: usize,
@@ -382,17 +361,39 @@ fn run_ring<
     dst: &mut [i32; M],
     flags: &mut u32,
 ) {
-    const { assert!(R == 2 * S && S.is_multiple_of(N) && S + 1 >= W && LEN == W - 1 + N && M == 2 * N) };
+    const {
+        assert!(
+            R == 2 * S
+                && S.is_multiple_of(N)
+                && S + 1 >= W
+                && LEN == W - 1 + N
+                && M == 2 * N
+                && N.is_multiple_of(2)
+                && N <= 8
+        )
+    };
     let q = batch_base::<S, N>(*pos);
     if let Some(line) = ring
         .get(q + S + 1 - W..)
         .and_then(|s| s.first_chunk::<LEN>())
     {
-        for (i, d) in dst.chunks_exact_mut(2).enumerate() {
-            if let Some(w) = line.get(i..).and_then(|s| s.first_chunk::<W>()) {
-                d.copy_from_slice(&stage_pair::<K, W, SHIFT>(w, c, flags));
-            }
+        // The window's taps, oldest first: c[K-1], ..., c[0], c[0], ..., c[K-1].
+        let h: [i32; W] = core::array::from_fn(|k| if k < K { c[K - 1 - k] } else { c[k - K] });
+        macro_rules! groups {
+            ($($g:literal)*) => {
+                $(
+                    if 2 * $g < N {
+                        if let (Some(v), Some(d)) = (
+                            line.get(2 * $g..2 * $g + W + 1),
+                            dst.get_mut(4 * $g..4 * $g + 4),
+                        ) {
+                            output_pair::<K, W, SHIFT>(v, &h, d, flags);
+                        }
+                    }
+                )*
+            };
         }
+        groups!(0 1 2 3);
     }
     let (lower, upper) = ring.split_at_mut(S);
     if let (Some(a), Some(b)) = (lower.get_mut(q..q + N), upper.get(q..q + N)) {
@@ -401,14 +402,51 @@ fn run_ring<
     *pos = q + N;
 }
 
+/// Two neighbouring computed outputs of a half-band stage and the centre
+/// taps that follow each: `v` holds the `W + 1` inputs the two windows
+/// span, `h` the `W` taps (the symmetric pairs' coefficients, oldest
+/// first), `d` the four outputs.
+///
+/// Each input is loaded once and multiplied into both sums (no pre-add;
+/// the `i64` sums are exact, so this is the same value): `2W`
+/// multiply-accumulates, `W + 1` loads, and few live registers (two sums,
+/// the taps, one input).
+#[inline(always)]
+fn output_pair<const K: usize, const W: usize, const SHIFT: u32>(
+    v: &[i32],
+    h: &[i32; W],
+    d: &mut [i32],
+    flags: &mut u32,
+) {
+    // A barrier for the optimiser only: this pair loads its own inputs
+    // instead of keeping the previous pair's live (and spilling them).
+    core::sync::atomic::compiler_fence(core::sync::atomic::Ordering::SeqCst);
+    if let (Some((v, &[last])), Some(d)) = (v.split_first_chunk::<W>(), d.first_chunk_mut::<4>()) {
+        let mut a = v[0] as i64 * h[0] as i64;
+        let mut b = 0i64;
+        for k in 1..W {
+            a = a.wrapping_add(v[k] as i64 * h[k] as i64);
+            b = b.wrapping_add(v[k] as i64 * h[k - 1] as i64);
+        }
+        b = b.wrapping_add(last as i64 * h[W - 1] as i64);
+        let ya = saturate((a >> 32) as i32, flags);
+        let yb = saturate((b >> 32) as i32, flags);
+        *d = [
+            ya << SHIFT,
+            v[K] << (SHIFT - 1),
+            yb << SHIFT,
+            v[K + 1] << (SHIFT - 1),
+        ];
+    }
+}
+
 /// Saturate a Q3.29 high word to full scale, recording a clamp in `flags`
 /// (set non-zero).
 ///
 /// `flags` is the caller's word in memory, written only on a clamp: a
-/// branch rather than a flag mask kept in a register. Besides costing no
-/// more instructions, the branch ends the basic block, so the compiler
-/// computes a stage's outputs one after the other instead of interleaving
-/// their sums and spilling the accumulators to the stack.
+/// branch rather than a flag mask kept in a register, which costs no more
+/// instructions (the compiler tests both outputs of an [`output_pair`]
+/// with one branch) and keeps a register free.
 #[inline(always)]
 fn saturate(y: i32, flags: &mut u32) -> i32 {
     let s = y.clamp(Q29_MIN, Q29_MAX);
@@ -642,7 +680,9 @@ impl Oversampler {
 
     /// One input sample (Q1.31) in, `ratio` samples (Q1.31) out, written to
     /// the front of `out`.
-    #[inline]
+    // Not inlined: the stages are inlined into it (about 4 KB of Cortex-M4
+    // code for all ratios), not worth duplicating at each call site.
+    #[inline(never)]
     pub fn push(&mut self, x: i32, out: &mut [i32; MAX_RATIO]) {
         if self.plan == THROUGH {
             out[0] = x;
