@@ -701,53 +701,81 @@ impl Oversampler {
         const L4: usize = W4 - 1 + N4;
         const LT: usize = W3X - 1 + NT;
         const LB: usize = W3 - 1 + NB;
-        if plan == 1 {
-            if let Some(d) = out.first_chunk_mut::<2>() {
-                run_head::<2>(ring, pos, x, tabs, d, &mut flags);
-            }
-        } else if plan >= SIX {
-            if let Some(t) = ring_tail::<ST, NT, { 2 * ST }>(rt, *pt) {
-                run_head::<1>(ring, pos, x, tabs, t, &mut flags);
-                if plan == SIX {
-                    if let Some(d) = out.first_chunk_mut::<6>() {
-                        run_third::<NT, ST, { 2 * ST }, LT, 6, 2>(
-                            rt, pt, &tabs.sum, &tabs.diff, d, &mut flags,
-                        );
-                    }
-                } else if let (Some(b), Some(d)) = (
-                    ring_tail::<SB, NB, { 2 * S2 }>(r2, *p2),
-                    out.first_chunk_mut::<12>(),
+        // The common 16x path is tested first.
+        match plan {
+            4 => {
+                if let (Some(t2), Some(t3), Some(t4)) = (
+                    ring_tail::<S2, N2, { 2 * S2 }>(r2, *p2),
+                    ring_tail::<S3, N3, { 2 * S3 }>(r3, *p3),
+                    ring_tail::<S4, N4, { 2 * S4 }>(r4, *p4),
                 ) {
-                    run_third::<NT, ST, { 2 * ST }, LT, 6, 1>(
-                        rt, pt, &tabs.sum, &tabs.diff, b, &mut flags,
+                    run_head::<1>(ring, pos, x, tabs, t2, &mut flags);
+                    run_ring::<K2, W2, N2, S2, { 2 * S2 }, L2, 4, 1>(
+                        r2, p2, &tabs.s2, t3, &mut flags,
                     );
-                    run_ring::<K3, W3, NB, SB, { 2 * S2 }, LB, 12, 2>(
-                        r2, p2, &tabs.s3, d, &mut flags,
-                    );
-                }
-            }
-        } else if let Some(t2) = ring_tail::<S2, N2, { 2 * S2 }>(r2, *p2) {
-            run_head::<1>(ring, pos, x, tabs, t2, &mut flags);
-            if plan == 2 {
-                if let Some(d) = out.first_chunk_mut::<4>() {
-                    run_ring::<K2, W2, N2, S2, { 2 * S2 }, L2, 4, 2>(
-                        r2, p2, &tabs.s2, d, &mut flags,
-                    );
-                }
-            } else if let Some(t3) = ring_tail::<S3, N3, { 2 * S3 }>(r3, *p3) {
-                run_ring::<K2, W2, N2, S2, { 2 * S2 }, L2, 4, 1>(r2, p2, &tabs.s2, t3, &mut flags);
-                if plan == 3 {
-                    if let Some(d) = out.first_chunk_mut::<8>() {
-                        run_ring::<K3, W3, N3, S3, { 2 * S3 }, L3, 8, 2>(
-                            r3, p3, &tabs.s3, d, &mut flags,
-                        );
-                    }
-                } else if let Some(t4) = ring_tail::<S4, N4, { 2 * S4 }>(r4, *p4) {
                     run_ring::<K3, W3, N3, S3, { 2 * S3 }, L3, 8, 1>(
                         r3, p3, &tabs.s3, t4, &mut flags,
                     );
                     run_ring::<K4, W4, N4, S4, { 2 * S4 }, L4, 16, 2>(
                         r4, p4, &tabs.s4, out, &mut flags,
+                    );
+                }
+            }
+            3 => {
+                if let (Some(t2), Some(t3), Some(d)) = (
+                    ring_tail::<S2, N2, { 2 * S2 }>(r2, *p2),
+                    ring_tail::<S3, N3, { 2 * S3 }>(r3, *p3),
+                    out.first_chunk_mut::<8>(),
+                ) {
+                    run_head::<1>(ring, pos, x, tabs, t2, &mut flags);
+                    run_ring::<K2, W2, N2, S2, { 2 * S2 }, L2, 4, 1>(
+                        r2, p2, &tabs.s2, t3, &mut flags,
+                    );
+                    run_ring::<K3, W3, N3, S3, { 2 * S3 }, L3, 8, 2>(
+                        r3, p3, &tabs.s3, d, &mut flags,
+                    );
+                }
+            }
+            2 => {
+                if let (Some(t2), Some(d)) = (
+                    ring_tail::<S2, N2, { 2 * S2 }>(r2, *p2),
+                    out.first_chunk_mut::<4>(),
+                ) {
+                    run_head::<1>(ring, pos, x, tabs, t2, &mut flags);
+                    run_ring::<K2, W2, N2, S2, { 2 * S2 }, L2, 4, 2>(
+                        r2, p2, &tabs.s2, d, &mut flags,
+                    );
+                }
+            }
+            1 => {
+                if let Some(d) = out.first_chunk_mut::<2>() {
+                    run_head::<2>(ring, pos, x, tabs, d, &mut flags);
+                }
+            }
+            SIX => {
+                if let (Some(t), Some(d)) = (
+                    ring_tail::<ST, NT, { 2 * ST }>(rt, *pt),
+                    out.first_chunk_mut::<6>(),
+                ) {
+                    run_head::<1>(ring, pos, x, tabs, t, &mut flags);
+                    run_third::<NT, ST, { 2 * ST }, LT, 6, 2>(
+                        rt, pt, &tabs.sum, &tabs.diff, d, &mut flags,
+                    );
+                }
+            }
+            _ => {
+                // TWELVE.
+                if let (Some(t), Some(b), Some(d)) = (
+                    ring_tail::<ST, NT, { 2 * ST }>(rt, *pt),
+                    ring_tail::<SB, NB, { 2 * S2 }>(r2, *p2),
+                    out.first_chunk_mut::<12>(),
+                ) {
+                    run_head::<1>(ring, pos, x, tabs, t, &mut flags);
+                    run_third::<NT, ST, { 2 * ST }, LT, 6, 1>(
+                        rt, pt, &tabs.sum, &tabs.diff, b, &mut flags,
+                    );
+                    run_ring::<K3, W3, NB, SB, { 2 * S2 }, LB, 12, 2>(
+                        r2, p2, &tabs.s3, d, &mut flags,
                     );
                 }
             }
