@@ -43,22 +43,41 @@
 //! 5.4.
 //!
 //! Measured on an emulated Cortex-M4 (QEMU `mps2-an386`, `-icount
-//! shift=0`, release build with fat LTO, random input, the call from a
-//! sample loop included; `oversample-x16` in `benches/cortex-m4`): 40.4
-//! instructions per update at 16x (646 per input sample). Before the
-//! clamp was recorded by a branch (see `saturate`) the counts were 113.5
-//! at 2x, 87 at 4x, 75 at 6x, 63 at 8x, 55.5 at 12x and 46 at 16x; the
-//! other ratios have not been measured since. A multiply-accumulate costs
-//! five instructions in the long first stage (two data loads, the pre-add,
-//! the coefficient load, `SMLAL`); the short later stages add per-output
-//! work (saturation, a compare and branch for the clamp count, two stores)
-//! and stack traffic for window samples shared by neighbouring outputs,
-//! about 7.5 instructions a multiply-accumulate.
+//! shift=0`, release build with fat LTO, the harness's test signal, the call
+//! from a sample loop included; `oversample-x16` from
+//! `benches/cortex-m4/run-check.sh`, the other ratios with the same loop
+//! added to the harness for the measurement), instructions per update:
+//!
+//! | ratio                     |     2 |    4 |    6 |    8 |   12 |   16 |
+//! |---------------------------|------:|-----:|-----:|-----:|-----:|-----:|
+//! | now                       |  90.1 | 63.3 | 62.4 | 44.6 | 42.8 | 30.9 |
+//! | previous implementation   | 115.1 | 87.0 | 71.2 | 60.5 | 50.3 | 40.4 |
+//!
+//! At 16x that is 494 instructions per input sample for 87
+//! multiply-accumulates, 5.7 each all in:
+//! - Stage 1, about 150: unrolled; per two coefficient pairs, two paired
+//!   loads (`LDRD`) for the four window words, one for the two
+//!   coefficients, two pre-adds and two `SMLAL`, 3.5 instructions a
+//!   multiply-accumulate (the delay line holds sample pairs for this, see
+//!   `run_head`).
+//! - Stages 2 to 4, about 80, 85 and 150: two neighbouring outputs at a
+//!   time (`output_pair`): `W + 1` loads, `2W` `SMLAL` (no pre-add), seven
+//!   instructions to saturate both and record a clamp, the output shifts
+//!   and two stores; 31 instructions for two outputs of stage 4, 12 of them
+//!   `SMLAL`.
+//! - About 30 for the call, the dispatch by ratio and the ring positions
+//!   and copies.
+//!
+//! The multiply-accumulates alone (pre-add and `SMLAL`, or two `SMLAL`) take
+//! at least 174 instructions per input (10.9 per update); loading the
+//! operands, saturating and storing make up most of the rest.
 //!
 //! # Arithmetic (bit-exact, integer only)
 //! - Input Q1.31. Delay lines hold Q2.30 (one guard bit), so the pre-add of
-//!   a symmetric pair cannot overflow `i32`. The input's lowest bit is
-//!   dropped (arithmetic shift; exact for 16- and 24-bit audio).
+//!   a symmetric pair cannot overflow `i32` (stages 2 to 4 multiply both
+//!   words of a pair instead, which gives the same exact sum). The input's
+//!   lowest bit is dropped (arithmetic shift; exact for 16- and 24-bit
+//!   audio).
 //! - Coefficients Q1.31 (`c x 2^31`), products summed exactly in `i64`
 //!   (`SMLAL`). The one rounding point of a stage is taking the high word,
 //!   `acc >> 32`, a Q3.29 value: a floor, whose error lies in
