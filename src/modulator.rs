@@ -39,6 +39,11 @@ use crate::requant::{Requantiser, ShaperSpec};
 use crate::sample::Sample;
 use crate::timer::{Timer, TimerSpec};
 
+/// Updates a channel that one pass of the stages covers (a whole number of
+/// frames, at least one): stack scratch of `2 (PASS_UPDATES + 16)` words a
+/// channel.
+const PASS_UPDATES: usize = 64;
+
 /// A compare register word: `u16` or `u32`. Every compare value the
 /// modulator writes is at most [`crate::timer::MAX_TOP`] * 2, so both hold
 /// it without loss.
@@ -278,11 +283,17 @@ impl<const CH: usize> Modulator<CH> {
         // compiler see it (no slice or chunk-size checks left).
         let ratio = self.ratio.clamp(1, MAX_RATIO);
         let per_frame = ratio * CH * N;
-        // Per channel: the block of updates this frame makes (signal, then
-        // high counts, then ticks), and for a 3-level natural leg pair the
-        // common-mode parts.
-        let mut fine = [[0i32; MAX_RATIO]; CH];
-        let mut common = [[0i32; MAX_RATIO]; CH];
+        let frames = (input.len() / CH).min(out.len() / per_frame);
+        // Frames a pass of the stages takes: up to PASS_UPDATES updates a
+        // channel, so that each stage's set-up (state into registers and
+        // back) is paid once for several frames.
+        let pass = (PASS_UPDATES / ratio).max(1);
+        // Per channel: the updates of one pass (signal, then high counts,
+        // then ticks), and for a 3-level natural leg pair the common-mode
+        // parts. MAX_RATIO of slack: the oversampler writes a whole
+        // MAX_RATIO array from each frame's offset.
+        let mut fine = [[0i32; PASS_UPDATES + MAX_RATIO]; CH];
+        let mut common = [[0i32; PASS_UPDATES + MAX_RATIO]; CH];
         // The bridge's words as affine maps, worked out once a call (`N` is
         // the bridge's word count, so they exist).
         let (Some(count_map), Some(leg_map)) =
@@ -290,31 +301,44 @@ impl<const CH: usize> Modulator<CH> {
         else {
             return 0;
         };
-        let mut frames = 0;
-        for (frame, words) in input.chunks_exact(CH).zip(out.chunks_exact_mut(per_frame)) {
-            // Stage by stage over the block, one channel at a time.
-            for (((channel, &s), f), w) in self
+        // Exactly the whole frames both slices hold: every pass then writes
+        // the words of exactly the frames it reads.
+        let input = input.get(..frames * CH).unwrap_or_default();
+        let out = out.get_mut(..frames * per_frame).unwrap_or_default();
+        for (frames_in, words) in input
+            .chunks(pass * CH)
+            .zip(out.chunks_mut(pass * per_frame))
+        {
+            let n = (frames_in.len() / CH) * ratio;
+            // Stage by stage over the pass, one channel at a time.
+            for (ch, ((channel, f), w)) in self
                 .channels
                 .iter_mut()
-                .zip(frame)
                 .zip(fine.iter_mut())
                 .zip(common.iter_mut())
+                .enumerate()
             {
-                channel.over.push(s.to_q31(&mut self.input_clamped), f);
-                match &mut channel.pair {
-                    None => channel.edge.process(&mut f[..ratio]),
-                    Some(pair) => {
-                        // 3-level, natural sampling: leg B's own crossing
-                        // (see `leg_pair`); `f` becomes the differential
-                        // count, `w` the common-mode part.
-                        pair.split(&mut channel.edge, &mut f[..ratio], &mut w[..ratio]);
+                for (frame, at) in frames_in.chunks_exact(CH).zip((0..).step_by(ratio)) {
+                    let s = frame
+                        .get(ch)
+                        .map_or(0, |s| s.to_q31(&mut self.input_clamped));
+                    if let Some(dst) = f.get_mut(at..).and_then(|d| d.first_chunk_mut()) {
+                        channel.over.push(s, dst);
                     }
                 }
-                channel.quant.process(&mut f[..ratio]);
+                let (f, w) = (&mut f[..n.min(PASS_UPDATES)], &mut w[..n.min(PASS_UPDATES)]);
+                match &mut channel.pair {
+                    None => channel.edge.process(f),
+                    // 3-level, natural sampling: leg B's own crossing (see
+                    // `leg_pair`); `f` becomes the differential count, `w`
+                    // the common-mode part.
+                    Some(pair) => pair.split(&mut channel.edge, f, w),
+                }
+                channel.quant.process(f);
             }
             // Words in DMA order: update by update, channel by channel;
             // written channel by channel so that a channel's leg-pair state
-            // and word map stay in registers for the block.
+            // and word map stay in registers for the pass.
             let (slots, _) = words.as_chunks_mut::<N>();
             let (groups, _) = slots.as_chunks_mut::<CH>();
             for (ch, ((channel, f), w)) in
@@ -340,7 +364,6 @@ impl<const CH: usize> Modulator<CH> {
                     }
                 }
             }
-            frames += 1;
         }
         frames
     }
@@ -354,5 +377,55 @@ impl<const CH: usize> Modulator<CH> {
         out: &mut [W],
     ) -> bool {
         self.process(frame, out) == 1
+    }
+}
+
+#[cfg(test)]
+mod tests {
+    use super::*;
+    use crate::timer::UpdateScheme;
+
+    /// Modulators whose passes hold 4 (16x), 64 (1x) and 10 (6x) frames.
+    fn modulators() -> [Modulator<2>; 3] {
+        let timer = TimerSpec::new(98.304e6, 384e3).with_update(UpdateScheme::Double);
+        let bridge = BridgeSpec::ideal(BridgeKind::Full3);
+        let spec = |rate: f64, sampling| ModulatorSpec {
+            sampling,
+            shaper: ShaperSpec::new(3).with_dither(true),
+            ..ModulatorSpec::new(timer, bridge, rate)
+        };
+        [
+            Modulator::try_new(spec(48e3, Sampling::NATURAL)).unwrap(),
+            Modulator::try_new(spec(768e3, Sampling::Uniform)).unwrap(),
+            Modulator::try_new(spec(128e3, Sampling::NATURAL)).unwrap(),
+        ]
+    }
+
+    #[test]
+    fn block_calls_equal_frame_calls_and_write_only_whole_frames() {
+        // The block API's contract (module docs): the words do not depend
+        // on how the input is cut into calls, a call writes the words of the
+        // whole frames both slices hold and nothing else.
+        for m in modulators() {
+            let (mut one, mut block) = (m.clone(), m);
+            let wpf = one.words_per_frame();
+            // 150 frames and a half, a busy signal near full scale.
+            let input: [i16; 301] = core::array::from_fn(|i| {
+                ((i as i32 * 7919 + (i as i32 * i as i32) * 31) % 60_000 - 30_000) as i16
+            });
+            let mut want = [0u16; 150 * 16 * 2 * 2 + 8];
+            for (frame, out) in input.chunks_exact(2).zip(want.chunks_exact_mut(wpf)) {
+                assert!(one.process_frame(&[frame[0], frame[1]], out));
+            }
+            // Room for 150 frames and 8 words more: those stay untouched.
+            let mut got = [0xAAAAu16; 150 * 16 * 2 * 2 + 8];
+            assert_eq!(block.process(&input, &mut got[..150 * wpf + 8]), 150);
+            assert_eq!(got[..150 * wpf], want[..150 * wpf]);
+            assert!(got[150 * wpf..].iter().all(|&w| w == 0xAAAA));
+            assert_eq!(block.counters(), one.counters());
+            // Too little room: only the frames that fit.
+            let mut short = [0u16; 3 * 16 * 2 * 2];
+            assert_eq!(block.process(&input, &mut short[..3 * wpf - 1]), 2);
+        }
     }
 }
