@@ -32,6 +32,16 @@
 //! `|s| ≤ 0.164` (`s⁴ < 7.3e-4`), with two updates a period half that. So
 //! one step reaches the accuracy of the interpolation itself.
 //!
+//! # Both legs at once
+//!
+//! The two legs of a 3-level bridge need the crossings of `p` with the
+//! rising and with the falling ramp, that is of `p` and of `p` reversed
+//! (`Poly::crossing_pair27`). Both Newton steps start from the same
+//! `v₀ = p(0)`, and reversal only flips the odd part of the polynomial, so
+//! `p(±v₀)` and the two slopes are a shared even part plus or minus a
+//! shared odd part: five multiplies instead of eight before the two
+//! series, the same step to within the roundings.
+//!
 //! # Slew limit
 //!
 //! A signal steeper than the carrier (`|s| ≥ 1`) can cross it several times
@@ -53,6 +63,12 @@
 #[inline(always)]
 pub(crate) fn mulh(a: i32, b: i32) -> i32 {
     ((a as i64 * b as i64) >> 32) as i32
+}
+
+/// [`mulh`] rounded to nearest (halves up): `SMMULR` on Armv7E-M.
+#[inline(always)]
+pub(crate) fn mulh_round(a: i32, b: i32) -> i32 {
+    ((a as i64 * b as i64 + (1 << 31)) >> 32) as i32
 }
 
 /// Q5.27 to Q1.31, saturated to `[−1, 1 − 2⁻²⁷]` (`SSAT` + shift).
@@ -212,6 +228,43 @@ impl Poly {
         }
         v
     }
+
+    /// Both crossings of the slot in one evaluation, one Newton step each:
+    /// `(v₊, v₋)`, `v₊` where the rising ramp meets `p` (as
+    /// [`Poly::crossing`]`(1)`) and `v₋` where it meets `p` reversed, in
+    /// Q5.27 saturated to `[−1, 1 − 2⁻²⁷]`. Both steps start from the same
+    /// `v₀ = p(0)`, and reversal flips the sign of the odd part only, so
+    /// `p(±v₀)` and the slopes are the shared even part plus or minus the
+    /// shared odd part: five multiplies for both legs where two separate
+    /// evaluations take eight (module docs).
+    #[inline(always)]
+    pub(crate) fn crossing_pair27(self) -> (i32, i32) {
+        let Self { d0, d1, d2, d3 } = self;
+        let v = to_q31(d0);
+        // Bounds for any input samples as in `crossing`; |v| <= 1. (Horner
+        // in v rather than via v²: LLVM knows v² >= 0 and then misses the
+        // 32 x 32 -> high 32 multiply on Armv7E-M.)
+        let a2 = mulh(v, d2); // d2 v, Q28, |.| <= 1/2
+        let m = mulh(v, mulh(v, d3)); // d3 v², Q28, |.| <= 1/6
+        let odd = d1 + m; // Q28, |.| <= 4/3
+                          // p(±v): even part (d0 + d2 v², Q27, |.| <= 5/2) plus or minus the
+                          // odd part (d1 v + d3 v³, Q27, |.| <= 4/3).
+        let pe = d0 + mulh(v, a2);
+        let po = mulh(v, odd);
+        // Slopes p'(±v) (as seen by each ramp): 2 d2 v plus or minus
+        // d1 + 3 d3 v², Q28, |.| <= 1 and 5/3.
+        let se = a2 << 1;
+        let so = odd + 2 * m;
+        let step = |q: i32, s: i32| {
+            let s = s.clamp(-(1 << 27), (1 << 27) - 1) << 4; // Q32, [-1/2, 1/2)
+                                                             // Residual e = p(v) − v (Q27, |.| < 5) and the step
+                                                             // v + e (1 + s + s² + s³) = q + s e (1 + s (1 + s)), |.| < 9.
+            let e = q - (v >> 4);
+            let w = q + mulh(e + mulh(e + mulh(e, s), s), s);
+            w.clamp(-(1 << 27), (1 << 27) - 1)
+        };
+        (step(pe + po, se + so), step(pe - po, se - so))
+    }
 }
 
 #[cfg(test)]
@@ -280,6 +333,68 @@ mod tests {
         assert!((v1 - exact).abs() < bound, "{v1} vs {exact}");
     }
 
+    /// Root of v = p(v) in [-1, 1] by bisection in f64 (the slope stays
+    /// below 1 here, so the root is unique).
+    fn root(p: Poly) -> f64 {
+        let (mut lo, mut hi) = (-1.0, 1.0);
+        for _ in 0..60 {
+            let mid = 0.5 * (lo + hi);
+            if mid - f(p, mid) < 0.0 {
+                lo = mid;
+            } else {
+                hi = mid;
+            }
+        }
+        0.5 * (lo + hi)
+    }
+
+    #[test]
+    fn pair_matches_two_single_crossings() {
+        // The pair is the same Newton step as `crossing(1)` on `p` and on
+        // `p` reversed, with shared terms: agreement to a few units of
+        // 2^-27 (roundings). Against the exact root (bisection), the error
+        // of one step from v0 = p(0) with e0 = p(v0) - v0 and s = p'(v0):
+        // the Newton term |p''| / 2 (e0 / (1 - s))^2 (textbook) and the
+        // truncated series' |s|^4 |e0| / (1 - s) (crossing docs), each
+        // allowed 1.5 times, plus 1e-7 of roundings.
+        let mut worst = 0.0f64;
+        for k in 0..400 {
+            let t = k as f64 * 0.731;
+            let samples = [0, 1, 2, 3].map(|j| {
+                let u = t + j as f64 * (0.05 + 0.1 * (k % 4) as f64);
+                q(0.9 * u.sin() + 0.05 * (3.7 * u).cos())
+            });
+            let [a, b, c, d] = samples;
+            for p in [
+                Poly::cubic(a, b, c, d),
+                Poly::quadratic(a, b, c),
+                Poly::linear(b, c),
+            ] {
+                let (vp, vm) = p.crossing_pair27();
+                let (sp, sm) = (p.crossing(1) >> 4, p.reversed().crossing(1) >> 4);
+                assert!((vp - sp).abs() <= 4 && (vm - sm).abs() <= 4, "{p:?}");
+                for (v, p) in [(vp, p), (vm, p.reversed())] {
+                    let v0 = f(p, 0.0);
+                    let e0 = f(p, v0) - v0;
+                    let c2 = p.d2 as f64 / (1u64 << 29) as f64;
+                    let c3 = p.d3 as f64 / (1u64 << 30) as f64;
+                    let s = p.d1 as f64 / (1u64 << 28) as f64 + 2.0 * c2 * v0 + 3.0 * c3 * v0 * v0;
+                    let p2 = 2.0 * c2 + 6.0 * c3 * v0;
+                    if s.abs() > 0.3 || v0.abs() > 0.99 {
+                        continue;
+                    }
+                    let newton = p2.abs() / 2.0 * (e0 / (1.0 - s)).powi(2);
+                    let series = s.powi(4) * e0.abs() / (1.0 - s);
+                    let bound = 1.5 * (newton + series) + 1e-7;
+                    let err = (v as f64 / (1u64 << 27) as f64 - root(p)).abs();
+                    worst = worst.max(err / bound);
+                    assert!(err < bound, "{p:?}: {err} > {bound}");
+                }
+            }
+        }
+        println!("largest error / bound: {worst:.2}");
+    }
+
     #[test]
     fn extremes_stay_in_range() {
         let xs = [i32::MIN, i32::MAX, 0, -1, 1];
@@ -296,6 +411,9 @@ mod tests {
                                 for it in 0..4 {
                                     let _ = p.crossing(it); // no overflow panic (debug)
                                 }
+                                let (vp, vm) = p.crossing_pair27();
+                                let one = 1 << 27;
+                                assert!((-one..one).contains(&vp) && (-one..one).contains(&vm));
                             }
                         }
                     }
