@@ -38,7 +38,7 @@
 //! [`EdgeSolver::next`], one call an update. Linear 27, quadratic 36
 //! (blocks of 16); uniform sampling 9 to 13. Both legs of a 3-level bridge
 //! ([`EdgeSolver::process_pair`], as [`crate::leg_pair::LegPair::split`]
-//! calls it, split included): about 70 on blocks of 16 with two updates a
+//! calls it, split included): about 69 on blocks of 16 with two updates a
 //! period, one evaluation serving both legs (`Poly::crossing_pair27`);
 //! 89 when each leg had its own.
 //!
@@ -354,8 +354,12 @@ impl EdgeSolver {
                 _ => Poly::cubic26(h1, h2, h3, s),
             };
             // v₊ meets the rising ramp, v₋ the falling one (Q5.27).
-            let (vp, vm) = if ONE {
-                p.crossing_pair27()
+            // Two updates a period halve the slope: three terms of the
+            // series suffice there (crossing docs).
+            let (vp, vm) = if ONE && ALT {
+                p.crossing_pair27::<3>()
+            } else if ONE {
+                p.crossing_pair27::<4>()
             } else {
                 (p.crossing(steps) >> 4, p.reversed().crossing(steps) >> 4)
             };
@@ -578,19 +582,28 @@ mod tests {
     /// One polynomial for both legs: leg A agrees with what `process`
     /// gives for `x` and leg B with a second solver fed `-x`, because `-p`
     /// meets a carrier where `p` meets the reversed one. The arithmetic
-    /// differs only in rounding: with one Newton step the pair shares the
-    /// start value, residual and slope terms of both legs; the second
-    /// solver's samples are `-x` truncated, not `x` truncated and negated.
-    /// Allowed: 4 parts in 2^16 of a tick. Blocks of uneven lengths, so
-    /// that history and direction carry across calls.
+    /// differs in rounding: with one Newton step the pair shares the start
+    /// value, residual and slope terms of both legs; the second solver's
+    /// samples are `-x` truncated, not `x` truncated and negated. Allowed:
+    /// 4 parts in 2^16 of a tick. With two updates a period and one step
+    /// the pair also stops the series a term earlier (crossing docs): on a
+    /// full-scale 20 kHz sine (`|s| <= 0.082`) that leaves up to
+    /// 0.082^4 / (1 - 0.082) = 4.9e-5 of the carrier more, 4.9e-5 * 2^22 =
+    /// 206 parts in 2^16 of a tick at top = 128. Blocks of uneven lengths,
+    /// so that history and direction carry across calls.
     #[test]
     fn pair_matches_a_solver_fed_minus_x() {
-        let xs: [i32; 64] = core::array::from_fn(|k| {
-            // A busy full-scale signal at the update rate.
+        // A busy full-scale signal at the update rate (slopes up to 0.3),
+        // and the full-scale 20 kHz sine two updates a period see.
+        let busy: [i32; 64] = core::array::from_fn(|k| {
             let t = k as f64 * 0.37;
             ((0.9 * t.sin() + 0.05 * (7.3 * t).cos()) * 2147483647.0) as i32
         });
-        let mut worst = 0;
+        let tone: [i32; 64] = core::array::from_fn(|k| {
+            let t = k as f64 * 2.0 * core::f64::consts::PI * 20e3 / 768e3;
+            (t.sin() * 2147483647.0) as i32
+        });
+        let mut worst = [0; 2];
         for spec in [
             TimerSpec::new(98.304e6, 384e3).with_update(UpdateScheme::Double),
             TimerSpec::new(98.304e6, 384e3).with_edge(Edge::Trailing),
@@ -599,6 +612,8 @@ mod tests {
             let t = Timer::try_new(spec).unwrap();
             let top16 = t.top() << FRAC_BITS;
             for (order, iterations) in (1..=3).flat_map(|o| (0..=3).map(move |i| (o, i))) {
+                let short = iterations == 1 && t.update() == UpdateScheme::Double;
+                let (xs, allowed) = if short { (tone, 206 + 4) } else { (busy, 4) };
                 let s = Sampling::Natural { order, iterations };
                 let mut pair = EdgeSolver::try_new(&t, s).unwrap();
                 let mut split = pair.clone();
@@ -618,18 +633,18 @@ mod tests {
                     let (n1, w1) = split_counts(ca[k], cb[k], top16);
                     let d = [a[k] - ca[k], b[k] - cb[k], n[k] - n1, w[k] - w1];
                     let d = d.iter().map(|d| d.abs()).max().unwrap();
-                    worst = worst.max(d);
-                    assert!(d <= 4, "{spec:?} {s:?} update {k}: {d}");
+                    worst[short as usize] = worst[short as usize].max(d);
+                    assert!(d <= allowed, "{spec:?} {s:?} update {k}: {d}");
                 }
             }
         }
-        println!("largest difference {worst} / 2^16 tick");
+        println!("largest difference {worst:?} / 2^16 tick (same series, shorter)");
         // One update a period on up/down has no crossing a slot.
         let t = Timer::try_new(TimerSpec::new(98.304e6, 384e3)).unwrap();
         let mut e = EdgeSolver::try_new(&t, Sampling::NATURAL).unwrap();
-        let (mut a, mut b) = (xs, [0i32; 64]);
+        let (mut a, mut b) = (busy, [0i32; 64]);
         assert!(!e.process_pair(&mut a, &mut b));
-        assert_eq!(a, xs);
+        assert_eq!(a, busy);
     }
 
     #[test]
