@@ -59,16 +59,24 @@ pub const MARGIN_TICKS: u32 = 2;
 pub struct LegPair {
     edge_b: EdgeSolver,
     top_q16: i32,
+    /// The per-update state and constants of [`LegPair::legs`], grouped
+    /// so that they load in pairs (`LDRD` on a Cortex-M4).
+    loop_state: LoopState,
+    counts: ClampCounts,
+}
+
+/// What [`LegPair::legs`] reads every update.
+#[derive(Clone, Copy, Debug)]
+#[repr(C)]
+struct LoopState {
+    /// Last two common-mode rounding errors `[e1, e2]`, Q16 ticks.
+    err: [i32; 2],
+    /// Lowest count and the width of the range, `[low, high - low]`.
+    range: [i32; 2],
     top: i32,
-    low: i32,
-    high: i32,
-    /// Last two common-mode rounding errors, Q16 ticks.
-    e1: i32,
-    e2: i32,
     /// Middle coefficient of the loop's NTF `1 + k1 z^-1 + z^-2`: +2 puts
     /// both zeros at half the update rate, -2 both at DC.
     k1: i32,
-    counts: ClampCounts,
 }
 
 impl LegPair {
@@ -81,13 +89,13 @@ impl LegPair {
     pub fn new(edge_b: EdgeSolver, top: u32, low: u32, high: u32, alternating: bool) -> Self {
         Self {
             edge_b,
-            k1: if alternating { 2 } else { -2 },
             top_q16: (top as i32) << FRAC_BITS,
-            top: top as i32,
-            low: low as i32,
-            high: high.max(low) as i32,
-            e1: 0,
-            e2: 0,
+            loop_state: LoopState {
+                err: [0, 0],
+                range: [low as i32, (high.max(low) - low) as i32],
+                top: top as i32,
+                k1: if alternating { 2 } else { -2 },
+            },
             counts: ClampCounts::default(),
         }
     }
@@ -130,28 +138,33 @@ impl LegPair {
     /// `n` and the common-mode part `w` (Q16) of one update.
     #[inline(always)]
     pub fn legs(&mut self, n: u32, w: i32) -> (u32, u32) {
+        let LoopState {
+            err: [e1, e2],
+            range,
+            top,
+            k1,
+        } = self.loop_state;
         // Error feedback with NTF (1 +- z^-1)^2: y = w + e + k1 e1 + e2.
-        let v = w + self.k1 * self.e1 + self.e2;
-        let m = (v + HALF) >> FRAC_BITS;
-        self.e2 = self.e1;
-        self.e1 = (m << FRAC_BITS) - v;
+        let v = w + k1 * e1 + e2;
+        let r = v + HALF;
+        let m = r >> FRAC_BITS;
+        // The error (m << 16) - v, from the fraction bits alone (`UXTH`).
+        self.loop_state.err = [HALF - (r & 0xFFFF), e1];
         let n = n as i32;
-        (self.clamp(n + m), self.clamp(self.top - n + m))
+        (self.clamp(n + m, range), self.clamp(top - n + m, range))
     }
 
     #[inline(always)]
-    fn clamp(&mut self, c: i32) -> u32 {
-        // One unsigned compare for the usual case (low <= high).
-        if (c.wrapping_sub(self.low) as u32) <= (self.high.wrapping_sub(self.low) as u32) {
+    fn clamp(&mut self, c: i32, [low, span]: [i32; 2]) -> u32 {
+        // One unsigned compare for the usual case.
+        if (c.wrapping_sub(low) as u32) <= span as u32 {
             c as u32
-        } else if c < self.low {
+        } else if c < low {
             self.counts.low = self.counts.low.wrapping_add(1);
-            self.low as u32
-        } else if c > self.high {
-            self.counts.high = self.counts.high.wrapping_add(1);
-            self.high as u32
+            low as u32
         } else {
-            c as u32
+            self.counts.high = self.counts.high.wrapping_add(1);
+            (low + span) as u32
         }
     }
 }
