@@ -329,6 +329,40 @@ fn stages() {
     time_stage("bridge-full3sep", &cs, |cs| tt_loop_bridge(&bridge, cs));
 }
 
+/// Bytes painted below the stack pointer to find a call's stack use.
+const PAINT_BYTES: usize = 16 * 1024;
+const PAINT: u32 = 0x5AA5_C33C;
+
+/// Bytes of stack that `f` uses below this function's own frame: the stack
+/// below the stack pointer is painted with a pattern, `f` runs, and the
+/// lowest word no longer holding the pattern marks its deepest point.
+#[inline(never)]
+fn stack_used<F: FnOnce()>(f: F) -> usize {
+    let sp = cortex_m::register::msp::read() as usize;
+    let base = sp - PAINT_BYTES;
+    // SAFETY: the stack sits at the top of the board's 4 MiB data RAM and
+    // the statics at its bottom (memory.x), so the PAINT_BYTES below the
+    // stack pointer are unused stack; nothing else refers to them, and the
+    // writes and reads are volatile word accesses to aligned addresses.
+    unsafe {
+        for a in (base..sp).step_by(4) {
+            core::ptr::write_volatile(a as *mut u32, PAINT);
+        }
+    }
+    f();
+    let mut deepest = sp;
+    // SAFETY: as above.
+    unsafe {
+        for a in (base..sp).step_by(4) {
+            if core::ptr::read_volatile(a as *const u32) != PAINT {
+                deepest = a;
+                break;
+            }
+        }
+    }
+    sp - deepest
+}
+
 /// Input frames cycled through by a timed chain run (8 blocks).
 const CHAIN_FRAMES: usize = 8 * BLOCK;
 
@@ -349,6 +383,17 @@ fn chain(config: &Config) {
         config.name,
         full as i64 - empty as i64,
         blocks * updates_per_block,
+    );
+    // Memory: the modulator's own state, and the stack one block's call
+    // takes (scratch of the stage passes included).
+    let stack = stack_used(|| {
+        black_box(m.process(&input[..BLOCK * CH], &mut *out));
+    });
+    hprintln!(
+        "memory {} state_bytes {} stack_bytes {}",
+        config.name,
+        core::mem::size_of::<Modulator<CH>>(),
+        stack
     );
 }
 
