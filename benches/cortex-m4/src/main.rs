@@ -51,6 +51,10 @@ const INSTR_PER_TICK: u64 = 40;
 /// Channel-updates a timed run aims at (about 2 M instructions or more).
 const TARGET_UPDATES: usize = 40_000;
 
+/// Updates a stage call takes in the `block-*` figures: the modulator's
+/// pass of the stages (64 updates a channel, 4 frames at 16x).
+const PASS: usize = 64;
+
 /// Update-rate values for the stage loops.
 const STAGE_LEN: usize = 4096;
 
@@ -130,8 +134,8 @@ fn tt_loop_requant(q: &mut Requantiser, vs: &[i32]) {
 #[no_mangle]
 #[inline(never)]
 fn tt_block_requant(q: &mut Requantiser, vs: &[i32]) {
-    for block in vs.chunks_exact(MAX_RATIO) {
-        let mut b = [0i32; MAX_RATIO];
+    for block in vs.chunks_exact(PASS) {
+        let mut b = [0i32; PASS];
         b.copy_from_slice(block);
         q.process(&mut b);
         black_box(&mut b);
@@ -141,8 +145,8 @@ fn tt_block_requant(q: &mut Requantiser, vs: &[i32]) {
 #[no_mangle]
 #[inline(never)]
 fn tt_block_edge(e: &mut EdgeSolver, xs: &[i32]) {
-    for block in xs.chunks_exact(MAX_RATIO) {
-        let mut b = [0i32; MAX_RATIO];
+    for block in xs.chunks_exact(PASS) {
+        let mut b = [0i32; PASS];
         b.copy_from_slice(block);
         e.process(&mut b);
         black_box(&mut b);
@@ -152,9 +156,9 @@ fn tt_block_edge(e: &mut EdgeSolver, xs: &[i32]) {
 #[no_mangle]
 #[inline(never)]
 fn tt_block_pair(p: &mut LegPair, e: &mut EdgeSolver, xs: &[i32]) {
-    for block in xs.chunks_exact(MAX_RATIO) {
-        let mut a = [0i32; MAX_RATIO];
-        let mut b = [0i32; MAX_RATIO];
+    for block in xs.chunks_exact(PASS) {
+        let mut a = [0i32; PASS];
+        let mut b = [0i32; PASS];
         a.copy_from_slice(block);
         p.split(e, &mut a, &mut b);
         black_box((&mut a, &mut b));
@@ -166,8 +170,8 @@ fn tt_block_pair(p: &mut LegPair, e: &mut EdgeSolver, xs: &[i32]) {
 #[no_mangle]
 #[inline(never)]
 fn tt_block_empty(xs: &[i32]) {
-    for block in xs.chunks_exact(MAX_RATIO) {
-        let mut b = [0i32; MAX_RATIO];
+    for block in xs.chunks_exact(PASS) {
+        let mut b = [0i32; PASS];
         b.copy_from_slice(block);
         black_box(&mut b);
     }
@@ -289,8 +293,8 @@ fn stages() {
         time_stage(name, &hs, |vs| tt_loop_requant(&mut q, vs));
     }
 
-    // The same stages on blocks of 16 updates, as the modulator calls them
-    // with 16x oversampling (net of copying each block in).
+    // The same stages on blocks of PASS updates, as the modulator calls
+    // them (net of copying each block in).
     for (name, spec) in [
         ("block-requant-round", ShaperSpec::ROUND),
         ("block-requant-ns3", ShaperSpec::new(3)),
