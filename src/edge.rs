@@ -38,9 +38,9 @@
 //! [`EdgeSolver::next`], one call an update. Linear 27, quadratic 36
 //! (blocks of 16); uniform sampling 9 to 13. Both legs of a 3-level bridge
 //! ([`EdgeSolver::process_pair`], as [`crate::leg_pair::LegPair::split`]
-//! calls it, split included): about 69 on blocks of 16 with two updates a
-//! period, one evaluation serving both legs (`Poly::crossing_pair27`);
-//! 89 when each leg had its own.
+//! calls it, split included): about 63 on passes of 64 updates with two
+//! updates a period (69 on blocks of 16), one evaluation serving both legs
+//! (`Poly::crossing_pair27`); 87 when each leg had its own.
 //!
 //! A falling carrier is the rising case with time reversed; the high count
 //! is `(1 + v) / 2 * top` with `v` the carrier value at the crossing, for
