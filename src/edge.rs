@@ -258,10 +258,14 @@ impl EdgeSolver {
 
     /// Both legs of a 3-level bridge from one polynomial a slot: on entry
     /// `a` holds the signal (Q1.31), on return `a` holds leg A's high counts
-    /// (the natural PWM of `x`, as [`EdgeSolver::process`] gives) and `b`
-    /// leg B's (the natural PWM of `-x`). Leg B's crossing needs no second
-    /// interpolation: `-p` meets a carrier where `p` meets the carrier
-    /// running the other way, so `x_B = -(crossing of p reversed)`.
+    /// (the natural PWM of `x`, as [`EdgeSolver::process`] gives it) and
+    /// `b` leg B's (the natural PWM of `-x`). Leg B's crossing needs no
+    /// second interpolation: `-p` meets a carrier where `p` meets the
+    /// carrier running the other way, so `x_B = -(crossing of p reversed)`.
+    /// With one Newton step both crossings come from one evaluation and
+    /// agree with `process` to a few 2^-16 tick; with two updates a period,
+    /// whose shorter series differs, to 3e-3 tick on a full-scale 20 kHz
+    /// sine (test beside the code). The counts are rebuilt from the split.
     /// Returns `false`, touching nothing, where the method has no crossing
     /// a slot (uniform sampling, or the centred width of one update a
     /// period): the caller then solves leg B from `-x` with a second solver.
