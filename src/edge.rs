@@ -38,9 +38,10 @@
 //! [`EdgeSolver::next`], one call an update. Linear 27, quadratic 36
 //! (blocks of 16); uniform sampling 9 to 13. Both legs of a 3-level bridge
 //! ([`EdgeSolver::process_pair`], as [`crate::leg_pair::LegPair::split`]
-//! calls it, split included): about 63 on passes of 64 updates with two
-//! updates a period (69 on blocks of 16), one evaluation serving both legs
-//! (`Poly::crossing_pair27`); 87 when each leg had its own.
+//! calls it, split included): about 61 on passes of 64 updates with two
+//! updates a period, one evaluation serving both legs
+//! (`Poly::crossing_pair27`) and the slots taken in (falling, rising)
+//! pairs; 87 when each leg had its own.
 //!
 //! A falling carrier is the rising case with time reversed; the high count
 //! is `(1 + v) / 2 * top` with `v` the carrier value at the crossing, for
@@ -288,6 +289,9 @@ impl EdgeSolver {
         if self.geometry != Geometry::Crossing {
             return false;
         }
+        // Slices of different lengths: the common length.
+        let len = a.len().min(b.len());
+        let (a, b) = (&mut a[..len], &mut b[..len]);
         let alt = self.toggle != 0;
         match (self.order, self.iterations == 1, alt) {
             (1, true, true) => self.crossings_pair::<1, true, true>(a, b),
@@ -342,32 +346,54 @@ impl EdgeSolver {
         // `top16` signed by the direction of the slot's carrier (negative
         // where it falls), flipped before each update when it alternates.
         let mut dir = if self.phase == 0 { top16 } else { -top16 };
-        if ALT && a.len().min(b.len()) % 2 == 1 {
+        if ALT && a.len() % 2 == 1 {
             self.phase = !self.phase;
         }
-        for (xa, xb) in a.iter_mut().zip(b.iter_mut()) {
-            let [h1, h2, h3] = h;
-            let s = *xa >> 5;
-            h = [h2, h3, s];
-            if ALT {
-                dir = -dir;
-            }
+        let solve = |[s0, s1, s2, s3]: [i32; 4]| {
             let p = match ORDER {
-                1 => Poly::linear26(h3, s),
-                2 => Poly::quadratic26(h2, h3, s),
-                _ => Poly::cubic26(h1, h2, h3, s),
+                1 => Poly::linear26(s2, s3),
+                2 => Poly::quadratic26(s1, s2, s3),
+                _ => Poly::cubic26(s0, s1, s2, s3),
             };
             // v₊ meets the rising ramp, v₋ the falling one (Q5.27).
             // Two updates a period halve the slope: three terms of the
             // series suffice there (crossing docs).
-            let (vp, vm) = if ONE && ALT {
+            if ONE && ALT {
                 p.crossing_pair27::<3>()
             } else if ONE {
                 p.crossing_pair27::<4>()
             } else {
                 (p.crossing(steps) >> 4, p.reversed().crossing(steps) >> 4)
-            };
-            (*xa, *xb) = split_pair(vp, vm, top16, dir);
+            }
+        };
+        if ALT {
+            // Pairs of slots, the second running the other way: swapping
+            // the crossings negates the common-mode part exactly.
+            dir = -dir;
+            let (pa, la) = a.as_chunks_mut::<2>();
+            let (pb, lb) = b.as_chunks_mut::<2>();
+            for ([xa0, xa1], [xb0, xb1]) in pa.iter_mut().zip(pb.iter_mut()) {
+                let [h1, h2, h3] = h;
+                let (s0, s1) = (*xa0 >> 5, *xa1 >> 5);
+                h = [h3, s0, s1];
+                let (vp, vm) = solve([h1, h2, h3, s0]);
+                (*xa0, *xb0) = split_pair(vp, vm, top16, dir);
+                let (vp, vm) = solve([h2, h3, s0, s1]);
+                (*xa1, *xb1) = split_pair(vm, vp, top16, dir);
+            }
+            for (xa, xb) in la.iter_mut().zip(lb.iter_mut()) {
+                let [h1, h2, h3] = h;
+                let (vp, vm) = solve([h1, h2, h3, *xa >> 5]);
+                (*xa, *xb) = split_pair(vp, vm, top16, dir);
+            }
+        } else {
+            for (xa, xb) in a.iter_mut().zip(b.iter_mut()) {
+                let [h1, h2, h3] = h;
+                let s = *xa >> 5;
+                h = [h2, h3, s];
+                let (vp, vm) = solve([h1, h2, h3, s]);
+                (*xa, *xb) = split_pair(vp, vm, top16, dir);
+            }
         }
     }
 
@@ -649,6 +675,31 @@ mod tests {
         let (mut a, mut b) = (busy, [0i32; 64]);
         assert!(!e.process_pair(&mut a, &mut b));
         assert_eq!(a, busy);
+    }
+
+    /// Slices of different lengths: the common length is solved, the rest
+    /// of the longer one left as it was, and the state (history, direction)
+    /// moves on by the common length only.
+    #[test]
+    fn pair_of_unequal_slices_uses_the_common_length() {
+        let t = Timer::try_new(TimerSpec::new(98.304e6, 384e3).with_update(UpdateScheme::Double))
+            .unwrap();
+        let xs: [i32; 9] = core::array::from_fn(|k| (k as i32 - 4) * 0x0876_5432);
+        let mut even = EdgeSolver::try_new(&t, Sampling::NATURAL).unwrap();
+        let mut uneven = even.clone();
+        let (mut a, mut b) = (xs, [7i32; 9]);
+        let (mut a2, mut b2) = (xs, [7i32; 12]);
+        for (lo, hi) in [(0, 5), (5, 9)] {
+            assert!(even.process_pair_split(&mut a[lo..hi], &mut b[lo..hi]));
+            assert!(uneven.process_pair_split(&mut a2[lo..hi], &mut b2[lo..hi + 3]));
+        }
+        assert_eq!((a, b), (a2, b2[..9].try_into().unwrap()));
+        assert_eq!(b2[9..], [7; 3]);
+        // a longer than b: its tail keeps the input.
+        let mut three = EdgeSolver::try_new(&t, Sampling::NATURAL).unwrap();
+        let (mut a3, mut b3) = (xs, [0i32; 5]);
+        assert!(three.process_pair_split(&mut a3, &mut b3));
+        assert_eq!(a3[5..], xs[5..]);
     }
 
     #[test]

@@ -118,6 +118,9 @@ impl LegPair {
     /// its own solver, fed `-x`.
     #[inline]
     pub fn split(&mut self, edge_a: &mut EdgeSolver, a: &mut [i32], b: &mut [i32]) {
+        // Slices of different lengths: the common length (no panic path).
+        let len = a.len().min(b.len());
+        let (a, b) = (&mut a[..len], &mut b[..len]);
         if edge_a.process_pair_split(a, b) {
             return;
         }
