@@ -38,10 +38,10 @@
 //! [`EdgeSolver::next`], one call an update. Linear 27, quadratic 36
 //! (blocks of 16); uniform sampling 9 to 13. Both legs of a 3-level bridge
 //! ([`EdgeSolver::process_pair`], as [`crate::leg_pair::LegPair::split`]
-//! calls it, split included): about 61 on passes of 64 updates with two
-//! updates a period, one evaluation serving both legs
-//! (`Poly::crossing_pair27`) and the slots taken in (falling, rising)
-//! pairs; 87 when each leg had its own.
+//! calls it, split included), on passes of 64 updates with two updates a
+//! period, one evaluation serving both legs (`Poly::crossing_pair27`) and
+//! the slots taken in (falling, rising) pairs: about 60; 87 when each leg
+//! had its own.
 //!
 //! A falling carrier is the rising case with time reversed; the high count
 //! is `(1 + v) / 2 * top` with `v` the carrier value at the crossing, for
@@ -96,6 +96,7 @@
 use crate::crossing::{mulh, mulh_round, Poly, THIRD};
 use crate::error::ConfigError;
 use crate::timer::{Edge, Timer, UpdateScheme};
+use core::mem::take;
 
 /// Fraction bits of an edge position (high count) in ticks.
 pub const FRAC_BITS: u32 = 16;
@@ -343,9 +344,11 @@ impl EdgeSolver {
             [] => self.hist,
         };
         let mut h = [h1, h2, h3];
-        // `top16` signed by the direction of the slot's carrier (negative
-        // where it falls), flipped before each update when it alternates.
-        let mut dir = if self.phase == 0 { top16 } else { -top16 };
+        // `top16` signed by the direction of the carrier in the last slot
+        // before the block (negative where it fell): with one update a
+        // period that of every slot; with two, the first slot runs the
+        // other way.
+        let dir = if self.phase == 0 { top16 } else { -top16 };
         if ALT && a.len() % 2 == 1 {
             self.phase = !self.phase;
         }
@@ -367,9 +370,24 @@ impl EdgeSolver {
             }
         };
         if ALT {
-            // Pairs of slots, the second running the other way: swapping
-            // the crossings negates the common-mode part exactly.
-            dir = -dir;
+            // Falling slots as rising ones with the crossings swapped, which
+            // negates the common-mode part exactly: no sign in a register.
+            // A rising first slot alone, then (falling, rising) pairs.
+            let (mut a, mut b) = (a, b);
+            if dir < 0 {
+                let (fa, fb) = (
+                    take(&mut a).split_first_mut(),
+                    take(&mut b).split_first_mut(),
+                );
+                if let (Some((fa, ta)), Some((fb, tb))) = (fa, fb) {
+                    let [h1, h2, h3] = h;
+                    let s = *fa >> 5;
+                    h = [h2, h3, s];
+                    let (vp, vm) = solve([h1, h2, h3, s]);
+                    (*fa, *fb) = split_pair(vp, vm, top16, top16);
+                    (a, b) = (ta, tb);
+                }
+            }
             let (pa, la) = a.as_chunks_mut::<2>();
             let (pb, lb) = b.as_chunks_mut::<2>();
             for ([xa0, xa1], [xb0, xb1]) in pa.iter_mut().zip(pb.iter_mut()) {
@@ -377,14 +395,14 @@ impl EdgeSolver {
                 let (s0, s1) = (*xa0 >> 5, *xa1 >> 5);
                 h = [h3, s0, s1];
                 let (vp, vm) = solve([h1, h2, h3, s0]);
-                (*xa0, *xb0) = split_pair(vp, vm, top16, dir);
+                (*xa0, *xb0) = split_pair(vm, vp, top16, top16);
                 let (vp, vm) = solve([h2, h3, s0, s1]);
-                (*xa1, *xb1) = split_pair(vm, vp, top16, dir);
+                (*xa1, *xb1) = split_pair(vp, vm, top16, top16);
             }
             for (xa, xb) in la.iter_mut().zip(lb.iter_mut()) {
                 let [h1, h2, h3] = h;
                 let (vp, vm) = solve([h1, h2, h3, *xa >> 5]);
-                (*xa, *xb) = split_pair(vp, vm, top16, dir);
+                (*xa, *xb) = split_pair(vm, vp, top16, top16);
             }
         } else {
             for (xa, xb) in a.iter_mut().zip(b.iter_mut()) {
