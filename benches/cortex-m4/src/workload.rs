@@ -53,6 +53,12 @@ pub fn timer_updown_double() -> TimerSpec {
     TimerSpec::new(CLOCK_HZ, CARRIER_HZ).with_update(UpdateScheme::Double)
 }
 
+/// Up/down counting, one update a period (at the counter's top): 384 kHz
+/// updates.
+pub fn timer_updown_single() -> TimerSpec {
+    TimerSpec::new(CLOCK_HZ, CARRIER_HZ)
+}
+
 /// 3-level full bridge, dead time 20 ns (2 ticks at 98.304 MHz, rounded up
 /// from 1.97) made by the timer's dead-time generator, 40 ns minimum pulse.
 pub fn bridge_full3() -> BridgeSpec {
@@ -95,6 +101,25 @@ pub const CONFIGS: &[Config] = &[
         spec: || ModulatorSpec {
             shaper: ShaperSpec::new(3),
             ..ModulatorSpec::new(timer_updown_double(), bridge_full3(), 48e3)
+        },
+    },
+    // The same two with one update a period (384 kHz updates, 8x): half
+    // the updates a second, for parts that cannot afford two.
+    Config {
+        name: "chain-natural-ns5-full3-single",
+        input_hz: 48_000,
+        spec: || ModulatorSpec {
+            sampling: Sampling::NATURAL,
+            shaper: ShaperSpec::new(5),
+            ..ModulatorSpec::new(timer_updown_single(), bridge_full3(), 48e3)
+        },
+    },
+    Config {
+        name: "chain-uniform-ns3-full3-single",
+        input_hz: 48_000,
+        spec: || ModulatorSpec {
+            shaper: ShaperSpec::new(3),
+            ..ModulatorSpec::new(timer_updown_single(), bridge_full3(), 48e3)
         },
     },
     Config {
