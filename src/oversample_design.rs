@@ -274,7 +274,7 @@ pub fn bessel_i0(x: f64) -> f64 {
 /// `h[n] = sinc(n/3) I0(beta sqrt(1 - (n/3P)^2)) / I0(beta)`, which is 1 at
 /// `n = 0` and 0 at the other multiples of 3 (a third-band or Nyquist(3)
 /// filter: one output in three is a copy of the input). The window method
-/// after J. F. Kaiser, Proc. IEEE ISCAS 1974 [memory].
+/// after J. F. Kaiser, Proc. IEEE ISCAS 1974 \[memory\].
 pub fn kaiser_third_band(p: usize, beta: f64) -> Vec<f64> {
     let half = 3.0 * p as f64;
     (0..2 * p)

@@ -15,7 +15,7 @@
 //!
 //! and a full-scale sine has power 1/2: `SNR = 10 log10(0.5 / P)`. Without
 //! shaping this is the textbook `6.02 log2(top) + 1.76 + 10 log10(OSR)` with
-//! `OSR = f_u / (2 B)` (Schreier & Temes 2005, ch. 4 [memory]). It is the
+//! `OSR = f_u / (2 B)` (Schreier & Temes 2005, ch. 4 \[memory\]). It is the
 //! quantisation bound only: uniform-sampling harmonics and the mixing of
 //! shaped noise by PWM's edge offsets are not in it, so `ticktone plan
 //! --verify N` measures the first rows with the lab.

@@ -3,7 +3,7 @@
 //! `w[n] = sum_j (-1)^j a_j cos(2 pi j n / N)`, `j = 0..=6`, periodic (DFT
 //! even) form. Coefficients: H.-H. Albrecht, "Tailoring of minimum sidelobe
 //! cosine-sum windows for high-resolution measurements", The Open Signal
-//! Processing Journal 3 (2010) [memory], highest sidelobe about -180 dB
+//! Processing Journal 3 (2010) \[memory\], highest sidelobe about -180 dB
 //! (checked numerically in `tests/lab_window.rs`).
 //!
 //! # Why this window on a coherent record
