@@ -342,15 +342,18 @@ impl Requantiser {
         }
     }
 
-    /// Coefficients and state as `M`-element arrays (no poles: `d` zero).
+    /// Coefficients as `M`-element arrays (no poles: `d` zero), negated
+    /// for the scaled kernel (see [`kernel`]).
     #[inline(always)]
-    fn arrays<const M: usize, const IIR: bool>(&self) -> Coefs<M> {
+    fn arrays<const M: usize, const IIR: bool, const SCALED: bool>(&self) -> Coefs<M> {
         const { assert!(M <= MAX_TAPS) };
         let c = self.ntf.feedback_coefs();
         let d = self.ntf.pole_coefs();
+        let sign = if SCALED { -1 } else { 1 };
         Coefs {
-            c: core::array::from_fn(|i| c[i]),
-            d: core::array::from_fn(|i| if IIR { d[i] } else { 0 }),
+            round: core::hint::black_box(1u32 << 31),
+            c: core::array::from_fn(|i| sign * c[i]),
+            d: core::array::from_fn(|i| if IIR { sign * d[i] } else { 0 }),
         }
     }
 
@@ -430,9 +433,11 @@ impl Requantiser {
         &mut self,
         block: &mut [i32],
     ) {
-        let k = self.arrays::<M, IIR>();
+        let k = self.arrays::<M, IIR, SCALED>();
+        // The scaled kernel holds -s 2^SCALE_BITS (exact both ways).
         let sh = if SCALED { SCALE_BITS } else { 0 };
-        let mut st: [i32; M] = core::array::from_fn(|i| self.state[i] << sh);
+        let sign = if SCALED { -1 } else { 1 };
+        let mut st: [i32; M] = core::array::from_fn(|i| sign * (self.state[i] << sh));
         let (in_low, in_high) = (self.in_low, self.in_high);
         let range = (self.q_low, self.q_high);
         let mut counts = self.counts;
@@ -440,10 +445,10 @@ impl Requantiser {
         for h in block.iter_mut() {
             let v = Self::clamp_input(in_low, in_high, *h, &mut counts);
             let dith = if DITHER { prng.next_q16() } else { 0 };
-            *h = kernel::<M, IIR, SCALED>(&mut st, &k, v, dith, range, &mut counts.overload).0;
+            *h = kernel::<M, IIR, SCALED>(&mut st, &k, v, dith, range, &mut counts.overload);
         }
         for (d, &s) in self.state.iter_mut().zip(&st) {
-            *d = s >> sh;
+            *d = sign * (s >> sh);
         }
         self.counts = counts;
         self.prng = prng;
@@ -452,19 +457,33 @@ impl Requantiser {
 
 /// Filter coefficients of one kernel size.
 struct Coefs<const M: usize> {
+    /// 2^31, the rounding term of the scaled sums, passed through
+    /// `black_box`: folded as a constant, the compiler computes the first
+    /// product twice (SMULL, then SMMLAR for the rounded high word).
+    round: u32,
     c: [i32; M],
     d: [i32; M],
 }
 
-/// The per-update loop shared by [`Requantiser::quantise`] and
-/// [`Requantiser::process`]: feedback, rounding with dither, the guard, and
-/// the state update. Returns the tick and the rounding error (Q16).
+/// The per-update loop of [`Requantiser::process`]: feedback, rounding
+/// with dither, the guard, and the state update, the same arithmetic as
+/// [`Requantiser::quantise`]. Returns the tick.
 ///
-/// `SCALED`: `st` holds the state times 2^[`SCALE_BITS`], so that
-/// `floor((S + 2^24) / 2^25)` for a sum `S` of products becomes the high
-/// word of `2^31 + 2^7 S` (and `u` that of `v 2^32 + 2^31 + 2^7 S`): the
-/// same values, exactly, when the scaled state fits `i32` and the sums
-/// `i64` (checked at configuration).
+/// `SCALED`: `st` holds the state times `-2^`[`SCALE_BITS`] and `k` the
+/// negated coefficients, so that `floor((S + 2^24) / 2^25)` for a sum `S`
+/// of products is the high word of `2^31 + 2^7 S`, one multiply-accumulate
+/// a product on a Cortex-M4 (SMLAL). With `e = q - u` the total error:
+///
+/// ```text
+/// u      = hi(v 2^32 + 2^31 + sum (-c_i)(-2^7 s_i))
+/// -s[n]  = -e + round(sum d_i s[n-i])
+///        = hi(-e 2^32 + 2^31 + sum (-d_i)(-2^7 s_i))
+/// ```
+///
+/// the same values, exactly, when the scaled state fits `i32` and the sums
+/// `i64` (checked at configuration). Negating the state lets the pole sum
+/// start from `-e` in the high word, so neither sum needs a separate add
+/// or subtract of its rounded value.
 #[inline(always)]
 fn kernel<const M: usize, const IIR: bool, const SCALED: bool>(
     st: &mut [i32; M],
@@ -473,23 +492,26 @@ fn kernel<const M: usize, const IIR: bool, const SCALED: bool>(
     dith: i32,
     (q_low, q_high): (i32, i32),
     overload: &mut u32,
-) -> (i32, i32) {
-    let (mut acc_c, mut acc_d) = if SCALED {
-        (((v as i64) << 32) + (1 << 31), 1 << 31)
-    } else {
-        (COEF_HALF, COEF_HALF)
-    };
-    for i in 0..M {
-        let s = st[i] as i64;
-        acc_c += k.c[i] as i64 * s;
-        if IIR {
-            acc_d += k.d[i] as i64 * s;
+) -> i32 {
+    // `hi << 32 | 2^31`, with the 2^31 hidden from the optimiser so the
+    // first product is one SMLAL onto it.
+    let start = |hi: i32| (((hi as u32 as u64) << 32) | k.round as u64) as i64;
+    let (u, acc_d) = if SCALED {
+        let mut acc_c = start(v);
+        for i in 0..M {
+            acc_c += k.c[i] as i64 * st[i] as i64;
         }
-    }
-    let u = if SCALED {
-        (acc_c >> 32) as i32
+        ((acc_c >> 32) as i32, 0)
     } else {
-        v + (acc_c >> COEF_FRAC_BITS) as i32
+        let (mut acc_c, mut acc_d) = (COEF_HALF, COEF_HALF);
+        for i in 0..M {
+            let s = st[i] as i64;
+            acc_c += k.c[i] as i64 * s;
+            if IIR {
+                acc_d += k.d[i] as i64 * s;
+            }
+        }
+        (v + (acc_c >> COEF_FRAC_BITS) as i32, acc_d)
     };
     let ud = u + dith;
     let mut q = (ud + HALF) >> FRAC_BITS;
@@ -502,20 +524,33 @@ fn kernel<const M: usize, const IIR: bool, const SCALED: bool>(
         *overload = overload.wrapping_add(1);
         q = q_high;
     }
-    let r = (q << FRAC_BITS) - ud;
     if M > 0 {
-        let e = r + dith;
-        let sn = match (IIR, SCALED) {
-            (false, _) => e,
-            (true, false) => e - (acc_d >> COEF_FRAC_BITS) as i32,
-            (true, true) => e - (acc_d >> 32) as i32,
+        let sn = if SCALED {
+            // -e, then -s[n] (see above).
+            let ne = u - (q << FRAC_BITS);
+            if IIR {
+                let mut acc_d = start(ne);
+                for i in 0..M {
+                    acc_d += k.d[i] as i64 * st[i] as i64;
+                }
+                ((acc_d >> 32) as i32) << SCALE_BITS
+            } else {
+                ne << SCALE_BITS
+            }
+        } else {
+            let e = (q << FRAC_BITS) - u;
+            if IIR {
+                e - (acc_d >> COEF_FRAC_BITS) as i32
+            } else {
+                e
+            }
         };
-        for i in (1..M).rev() {
-            st[i] = st[i - 1];
-        }
-        st[0] = if SCALED { sn << SCALE_BITS } else { sn };
+        // A new array rather than shifting in place: the shift loop would
+        // become a memmove and keep the state in memory.
+        let old = *st;
+        *st = core::array::from_fn(|i| if i == 0 { sn } else { old[i - 1] });
     }
-    (q, r)
+    q
 }
 
 #[cfg(test)]
