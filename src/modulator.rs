@@ -19,7 +19,7 @@
 //! [`Modulator::process`] runs the stages over passes of up to 64 updates
 //! a channel (4 input frames at 16x oversampling, 64 at 1x), so that each
 //! stage's set-up is paid once a pass; the words do not depend on how the
-//! input is cut into calls. Per call that takes about 1.7 KB of stack for
+//! input is cut into calls. Per call that takes up to 1.8 KB of stack for
 //! stereo (the pass scratch, `2 x 80` words a channel, and the stages'
 //! frames); a `Modulator<2>` holds about 4.5 KB of state, most of it the
 //! oversamplers' delay lines. Instruction counts per configuration on an
