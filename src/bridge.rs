@@ -324,8 +324,11 @@ impl Bridge {
 /// `word[j] = offset[j] + slope[j] * leg(j)` (wrapping `u32`, `slope` being
 /// `1` or `u32::MAX` for -1), for block loops that want no branch an
 /// update: [`Bridge::words_legs`] and [`Bridge::words`] written as
-/// constants worked out once. Leg B feeds word `j` when `2 j >= N > 1`
-/// (the second of two words, the last two of four).
+/// constants worked out once. In [`WordMap::words`] leg B feeds word `j`
+/// when `2 j >= N > 1` (the second of two words, the last two of four):
+/// right for a full bridge. A half bridge has one leg, whose two words
+/// (separate compares) are both leg A's: pass its count as both `a` and
+/// `b`, as [`Bridge::words_legs`] requires for it.
 #[derive(Clone, Copy, Debug, PartialEq, Eq)]
 pub struct WordMap<const N: usize> {
     /// Per word: constant part.

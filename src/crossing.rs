@@ -428,6 +428,9 @@ mod tests {
                                 for it in 0..4 {
                                     let _ = p.crossing(it); // no overflow panic (debug)
                                 }
+                                // The range holds by construction (the
+                                // solver clamps its result); what this
+                                // loop tests is that no step overflows.
                                 let one = 1 << 27;
                                 for (vp, vm) in [p.crossing_pair27::<3>(), p.crossing_pair27::<4>()]
                                 {

@@ -32,11 +32,12 @@
 //!
 //! Cost, in instructions per update on a Cortex-M4 (QEMU `mps2-an386` with
 //! `-icount`, the harness of `benches/cortex-m4` timing this stage alone on
-//! an update-rate signal), cubic with one Newton step: about 46 through
-//! [`EdgeSolver::process`] on blocks of 16 updates, as the modulator calls
-//! it with 16x oversampling (37 of them in the loop itself), and 70 through
-//! [`EdgeSolver::next`], one call an update. Linear 27, quadratic 36
-//! (blocks of 16); uniform sampling 9 to 13. Both legs of a 3-level bridge
+//! an update-rate signal), cubic with one Newton step: about 41 through
+//! [`EdgeSolver::process`] on passes of 64 updates, as the modulator calls
+//! it (`block-edge-natural-cubic1`), and 70 through [`EdgeSolver::next`],
+//! one call an update (`edge-natural-cubic1`); uniform sampling 3.7 and 13
+//! (`block-edge-uniform`, `edge-uniform`). Linear and quadratic were 27 and
+//! 36 on the earlier blocks of 16 updates (not measured since). Both legs of a 3-level bridge
 //! ([`EdgeSolver::process_pair`], as [`crate::leg_pair::LegPair::split`]
 //! calls it, split included), on passes of 64 updates with two updates a
 //! period, one evaluation serving both legs (`Poly::crossing_pair27`) and

@@ -397,8 +397,11 @@ mod tests {
     use super::*;
     use crate::timer::UpdateScheme;
 
-    /// Modulators whose passes hold 4 (16x), 64 (1x) and 10 (6x) frames.
-    fn modulators() -> [Modulator<2>; 3] {
+    /// Modulators whose passes hold 4 (16x), 64 (1x, uniform and natural)
+    /// and 10 (6x) frames. Natural at 1x called frame by frame makes passes
+    /// of one update: the leg pair's odd-length passes, whose next slot
+    /// starts the other way.
+    fn modulators() -> [Modulator<2>; 4] {
         let timer = TimerSpec::new(98.304e6, 384e3).with_update(UpdateScheme::Double);
         let bridge = BridgeSpec::ideal(BridgeKind::Full3);
         let spec = |rate: f64, sampling| ModulatorSpec {
@@ -410,6 +413,7 @@ mod tests {
             Modulator::try_new(spec(48e3, Sampling::NATURAL)).unwrap(),
             Modulator::try_new(spec(768e3, Sampling::Uniform)).unwrap(),
             Modulator::try_new(spec(128e3, Sampling::NATURAL)).unwrap(),
+            Modulator::try_new(spec(768e3, Sampling::NATURAL)).unwrap(),
         ]
     }
 

@@ -66,8 +66,9 @@ echo "ok: $n target checksums equal checksums.txt (the host test checks the same
 
 elf="${CARGO_TARGET_DIR:-target}/thumbv7em-none-eabihf/release/ticktone-cortex-m4"
 if command -v llvm-objdump >/dev/null && command -v llvm-symbolizer >/dev/null; then
-    # Hot functions: the modulator's block call and the timed loops.
-    syms=$(llvm-objdump -t "$elf" | awk '$NF ~ /Modulator.*7process|^tt_loop_|^tt_chain_blocks/ { print $NF }' | sort -u)
+    # Hot functions: the modulator's block call, the stage functions it
+    # calls that the optimiser keeps out of line, and the timed loops.
+    syms=$(llvm-objdump -t "$elf" | awk '$NF ~ /Modulator.*7process|Oversampler4push|Requantiser7process|EdgeSolver9crossings|EdgeSolver14crossings_pair|LegPair5split|^tt_loop_|^tt_block_|^tt_chain_blocks/ { print $NF }' | sort -u)
     sites=0
     root=$(cd ../.. && pwd)
     for s in $syms; do
