@@ -358,15 +358,14 @@ impl Requantiser {
     /// Coefficients as `M`-element arrays (no poles: `d` zero), negated
     /// for the scaled kernel (see [`kernel`]).
     #[inline(always)]
-    fn arrays<const M: usize, const IIR: bool, const SCALED: bool>(&self) -> Coefs<M> {
+    fn arrays<const M: usize, const IIR: bool>(&self) -> Coefs<M> {
         const { assert!(M <= MAX_TAPS) };
         let c = self.ntf.feedback_coefs();
         let d = self.ntf.pole_coefs();
-        let sign = if SCALED { -1 } else { 1 };
         Coefs {
             round: core::hint::black_box(1u32 << 31),
-            c: core::array::from_fn(|i| sign * c[i]),
-            d: core::array::from_fn(|i| if IIR { sign * d[i] } else { 0 }),
+            c: core::array::from_fn(|i| -c[i]),
+            d: core::array::from_fn(|i| if IIR { -d[i] } else { 0 }),
         }
     }
 
@@ -395,14 +394,12 @@ impl Requantiser {
         let u = v + (acc_c >> COEF_FRAC_BITS) as i32;
         let dith = if self.dither { self.prng.next_q16() } else { 0 };
         let ud = u + dith;
-        let mut q = (ud + HALF) >> FRAC_BITS;
-        if q < self.q_low {
-            self.counts.overload = self.counts.overload.wrapping_add(1);
-            q = self.q_low;
-        } else if q > self.q_high {
-            self.counts.overload = self.counts.overload.wrapping_add(1);
-            q = self.q_high;
-        }
+        let q = guard(
+            (ud + HALF) >> FRAC_BITS,
+            self.q_low,
+            self.q_high,
+            &mut self.counts.overload,
+        );
         let r = (q << FRAC_BITS) - ud;
         if M > 0 {
             let e = r + dith;
@@ -427,11 +424,11 @@ impl Requantiser {
         // per-value path, the same arithmetic: a kernel of its own would
         // double this function's code (about 25 KB on a Cortex-M4) for a
         // case that is rare.
-        match (self.dither, M > 0 && self.scaled) {
-            (true, true) => self.run_d::<M, IIR, true, true>(block),
-            (false, true) => self.run_d::<M, IIR, false, true>(block),
-            (true, false) if M == 0 => self.run_d::<M, IIR, true, false>(block),
-            (false, false) if M == 0 => self.run_d::<M, IIR, false, false>(block),
+        match (self.dither, self.scaled) {
+            (true, _) if M == 0 => self.run_round::<true>(block),
+            (false, _) if M == 0 => self.run_round::<false>(block),
+            (true, true) => self.run_d::<M, IIR, true>(block),
+            (false, true) => self.run_d::<M, IIR, false>(block),
             (_, false) => {
                 for h in block.iter_mut() {
                     *h = self.step::<M, IIR>(*h).0 as i32;
@@ -440,17 +437,34 @@ impl Requantiser {
         }
     }
 
-    /// [`Requantiser::run`] with dither on or off, the state scaled or not.
+    /// Plain rounding of a block (no filter), with dither on or off.
     #[inline(always)]
-    fn run_d<const M: usize, const IIR: bool, const DITHER: bool, const SCALED: bool>(
-        &mut self,
-        block: &mut [i32],
-    ) {
-        let k = self.arrays::<M, IIR, SCALED>();
+    fn run_round<const DITHER: bool>(&mut self, block: &mut [i32]) {
+        let (in_low, in_high) = (self.in_low, self.in_high);
+        let (q_low, q_high) = (self.q_low, self.q_high);
+        let mut counts = self.counts;
+        let mut prng = self.prng;
+        for h in block.iter_mut() {
+            let v = Self::clamp_input(in_low, in_high, *h, &mut counts);
+            let dith = if DITHER { prng.next_q16() } else { 0 };
+            *h = guard(
+                (v + dith + HALF) >> FRAC_BITS,
+                q_low,
+                q_high,
+                &mut counts.overload,
+            );
+        }
+        self.counts = counts;
+        self.prng = prng;
+    }
+
+    /// [`Requantiser::run`] with dither on or off, the state held scaled
+    /// (see [`kernel`]).
+    #[inline(always)]
+    fn run_d<const M: usize, const IIR: bool, const DITHER: bool>(&mut self, block: &mut [i32]) {
+        let k = self.arrays::<M, IIR>();
         // The scaled kernel holds -s 2^SCALE_BITS (exact both ways).
-        let sh = if SCALED { SCALE_BITS } else { 0 };
-        let sign = if SCALED { -1 } else { 1 };
-        let mut st: [i32; M] = core::array::from_fn(|i| sign * (self.state[i] << sh));
+        let mut st: [i32; M] = core::array::from_fn(|i| -(self.state[i] << SCALE_BITS));
         let (in_low, in_high) = (self.in_low, self.in_high);
         let range = (self.q_low, self.q_high);
         let mut counts = self.counts;
@@ -460,20 +474,12 @@ impl Requantiser {
             ($h:expr, $at:expr) => {{
                 let v = Self::clamp_input(in_low, in_high, *$h, &mut counts);
                 let dith = if DITHER { prng.next_q16() } else { 0 };
-                *$h = kernel::<M, IIR, SCALED>(
-                    &mut st,
-                    $at,
-                    &k,
-                    v,
-                    dith,
-                    range,
-                    &mut counts.overload,
-                );
+                *$h = kernel::<M, IIR>(&mut st, $at, &k, v, dith, range, &mut counts.overload);
             }};
         }
         // Groups of M updates with the state as a ring (see `kernel`): no
         // moves, each state value stays in its register for the group.
-        let (groups, rest) = if SCALED && M > 1 && M <= RING_MAX_TAPS {
+        let (groups, rest) = if M > 1 && M <= RING_MAX_TAPS {
             block.as_chunks_mut::<M>()
         } else {
             (&mut [][..], block)
@@ -493,10 +499,27 @@ impl Requantiser {
             one!(h, None);
         }
         for (d, &s) in self.state.iter_mut().zip(&st) {
-            *d = sign * (s >> sh);
+            *d = -(s >> SCALE_BITS);
         }
         self.counts = counts;
         self.prng = prng;
+    }
+}
+
+/// The last guard on a tick, counted in `overload`.
+#[inline(always)]
+fn guard(q: i32, q_low: i32, q_high: i32, overload: &mut u32) -> i32 {
+    // One unsigned compare for the usual case (q_low <= q_high).
+    if (q.wrapping_sub(q_low) as u32) <= (q_high.wrapping_sub(q_low) as u32) {
+        q
+    } else if q < q_low {
+        *overload = overload.wrapping_add(1);
+        q_low
+    } else if q > q_high {
+        *overload = overload.wrapping_add(1);
+        q_high
+    } else {
+        q
     }
 }
 
@@ -514,7 +537,7 @@ struct Coefs<const M: usize> {
 /// with dither, the guard, and the state update, the same arithmetic as
 /// [`Requantiser::quantise`]. Returns the tick.
 ///
-/// `SCALED`: `st` holds the state times `-2^`[`SCALE_BITS`] and `k` the
+/// `st` holds the state times `-2^`[`SCALE_BITS`] and `k` the
 /// negated coefficients, so that `floor((S + 2^24) / 2^25)` for a sum `S`
 /// of products is the high word of `2^31 + 2^7 S`, one multiply-accumulate
 /// a product on a Cortex-M4 (SMLAL). With `e = q - u` the total error:
@@ -526,7 +549,8 @@ struct Coefs<const M: usize> {
 /// ```
 ///
 /// the same values, exactly, when the scaled state fits `i32` and the sums
-/// `i64` (checked at configuration). Negating the state lets the pole sum
+/// `i64` (checked at configuration; a filter that does not fit takes
+/// [`Requantiser::quantise`]'s per-value path instead). Negating the state lets the pole sum
 /// start from `-e` in the high word, so neither sum needs a separate add
 /// or subtract of its rounded value.
 ///
@@ -536,7 +560,7 @@ struct Coefs<const M: usize> {
 /// the caller goes on at `(p + M - 1) % M`: after `M` updates from `p = 0`
 /// the ring is back in shifted order, and no value has moved.
 #[inline(always)]
-fn kernel<const M: usize, const IIR: bool, const SCALED: bool>(
+fn kernel<const M: usize, const IIR: bool>(
     st: &mut [i32; M],
     at: Option<usize>,
     k: &Coefs<M>,
@@ -553,54 +577,23 @@ fn kernel<const M: usize, const IIR: bool, const SCALED: bool>(
         None => i,
         Some(p) => (p + i) % M,
     };
-    let (u, acc_d) = if SCALED {
-        let mut acc_c = start(v);
-        for i in 0..M {
-            acc_c += k.c[i] as i64 * st[ix(i)] as i64;
-        }
-        ((acc_c >> 32) as i32, 0)
-    } else {
-        let (mut acc_c, mut acc_d) = (COEF_HALF, COEF_HALF);
-        for i in 0..M {
-            let s = st[ix(i)] as i64;
-            acc_c += k.c[i] as i64 * s;
-            if IIR {
-                acc_d += k.d[i] as i64 * s;
-            }
-        }
-        (v + (acc_c >> COEF_FRAC_BITS) as i32, acc_d)
-    };
-    let ud = u + dith;
-    let mut q = (ud + HALF) >> FRAC_BITS;
-    // One unsigned compare for the usual case (q_low <= q_high).
-    if (q.wrapping_sub(q_low) as u32) <= (q_high.wrapping_sub(q_low) as u32) {
-    } else if q < q_low {
-        *overload = overload.wrapping_add(1);
-        q = q_low;
-    } else if q > q_high {
-        *overload = overload.wrapping_add(1);
-        q = q_high;
+    let mut acc_c = start(v);
+    for i in 0..M {
+        acc_c += k.c[i] as i64 * st[ix(i)] as i64;
     }
+    let u = (acc_c >> 32) as i32;
+    let q = guard((u + dith + HALF) >> FRAC_BITS, q_low, q_high, overload);
     if M > 0 {
-        let sn = if SCALED {
-            // -e, then -s[n] (see above).
-            let ne = u - (q << FRAC_BITS);
-            if IIR {
-                let mut acc_d = start(ne);
-                for i in 0..M {
-                    acc_d += k.d[i] as i64 * st[ix(i)] as i64;
-                }
-                ((acc_d >> 32) as i32) << SCALE_BITS
-            } else {
-                ne << SCALE_BITS
+        // -e, then -s[n] (see above).
+        let ne = u - (q << FRAC_BITS);
+        let sn = if IIR {
+            let mut acc_d = start(ne);
+            for i in 0..M {
+                acc_d += k.d[i] as i64 * st[ix(i)] as i64;
             }
+            ((acc_d >> 32) as i32) << SCALE_BITS
         } else {
-            let e = (q << FRAC_BITS) - u;
-            if IIR {
-                e - (acc_d >> COEF_FRAC_BITS) as i32
-            } else {
-                e
-            }
+            ne << SCALE_BITS
         };
         // A new array rather than shifting in place: the shift loop would
         // become a memmove and keep the state in memory.
