@@ -19,7 +19,7 @@
 //! # Cost
 //! [`Requantiser::process`] on a Cortex-M4, on passes of 64 updates as the
 //! modulator calls it (benches/cortex-m4): about 12 instructions an update
-//! for plain rounding, 30 for [`ShaperSpec::new`]`(3)` and 43 to 48 for
+//! for plain rounding, 30 for [`ShaperSpec::new`]`(3)` and 43 for
 //! [`ShaperSpec::new`]`(5)` (the figures move by a few instructions with
 //! code placement: `block-requant-*` of `./run-check.sh` there).
 //!
